@@ -1,0 +1,216 @@
+using Accountant.Bounds;
+using Accountant.Ledger;
+using Accountant.Statements;
+
+namespace Accountant;
+
+/// <summary>One look to record: a configuration with either its predictions or, when only that is known, its score.</summary>
+public sealed record LookInput
+{
+    /// <summary>The configuration as JSON (an object); stored in canonical form.</summary>
+    public required string Configuration { get; init; }
+
+    /// <summary>The look's score on the holdout, when predictions are not available.</summary>
+    public double? Score { get; init; }
+
+    /// <summary>One prediction per holdout example; the losses and the score are computed from them.</summary>
+    public IReadOnlyList<Prediction>? Predictions { get; init; }
+
+    /// <summary>A label grouping the looks of one search process.</summary>
+    public string? Search { get; init; }
+
+    /// <summary>The fidelity of a partial evaluation, e.g. a fraction of the training budget.</summary>
+    public string? Stage { get; init; }
+
+    /// <summary>Whether the configuration was chosen using earlier scores on the same holdout.</summary>
+    public bool Adaptive { get; init; }
+}
+
+/// <summary>
+/// The library's front door: open a ledger, register a holdout, record looks from a training loop, read a statement.
+/// Every method checks its input completely before it writes, so an error leaves the ledger as it was.
+/// </summary>
+/// <example>
+/// <code>
+/// using var book = Bookkeeper.Open("accountant.db");
+/// var look = book.Record("validation", """{"trainer":"fasttree","leaves":31}""", predictions);
+/// var statement = book.Statement("validation");
+/// </code>
+/// </example>
+public sealed class Bookkeeper : IDisposable
+{
+    public const int MaxNameLength = 200;
+
+    public Bookkeeper(ILedgerStore store) => Store = store;
+
+    public ILedgerStore Store { get; }
+
+    /// <summary>Creates a new SQLite ledger file.</summary>
+    public static Bookkeeper Create(string path, TimeProvider? clock = null) => new(SqliteLedgerStore.Create(path, clock));
+
+    /// <summary>Opens an existing SQLite ledger file.</summary>
+    public static Bookkeeper Open(string path, TimeProvider? clock = null) => new(SqliteLedgerStore.Open(path, clock));
+
+    /// <summary>Opens a SQLite ledger, creating it first when it does not exist.</summary>
+    public static Bookkeeper OpenOrCreate(string path, TimeProvider? clock = null) =>
+        File.Exists(path) ? Open(path, clock) : Create(path, clock);
+
+    /// <summary>
+    /// Registers a validation set. Ids are trimmed and must be unique and non-empty; labels are canonicalized
+    /// (<see cref="Fingerprint.CanonicalLabel"/>); regression metrics need numeric labels and a declared loss range.
+    /// </summary>
+    public Holdout RegisterHoldout(string name, IEnumerable<HoldoutExample> examples, Metric metric = Metric.Error, LossRange? lossRange = null)
+    {
+        CheckName(name, "holdout name");
+        var range = metric.IsZeroOne() ? LossRange.Unit : lossRange ?? throw AccountantException.BadArguments(
+            $"{metric.Name()} needs a declared loss range that each example's loss is clipped to; give --loss-range LO,HI, for example 0,10.");
+        if (metric.IsZeroOne() && lossRange is { } given && given != LossRange.Unit)
+        {
+            throw AccountantException.BadArguments($"{metric.Name()} uses 0/1 losses, so its loss range is 0,1; leave out --loss-range.");
+        }
+
+        var prepared = new List<HoldoutExample>();
+        var seen = new Dictionary<string, int>(StringComparer.Ordinal);
+        var row = 0;
+        foreach (var example in examples)
+        {
+            row++;
+            var id = example.Id.Trim();
+            if (id.Length == 0)
+            {
+                throw AccountantException.BadInput($"example {row} of the holdout has an empty id; give every example a unique id.");
+            }
+
+            if (!seen.TryAdd(id, row))
+            {
+                throw AccountantException.BadInput($"examples {seen[id]} and {row} of the holdout share the id '{Losses.Shorten(id)}' (after trimming spaces); ids must be unique.");
+            }
+
+            var label = Fingerprint.CanonicalLabel(example.Label);
+            if (label.Length == 0)
+            {
+                throw AccountantException.BadInput($"example '{Losses.Shorten(id)}' of the holdout has an empty label; give every example its label.");
+            }
+
+            if (!metric.IsZeroOne() && !double.TryParse(label, System.Globalization.NumberStyles.Float, System.Globalization.CultureInfo.InvariantCulture, out _))
+            {
+                throw AccountantException.BadInput($"example '{Losses.Shorten(id)}' has the label '{Losses.Shorten(label)}', which is not a finite number; {metric.Name()} needs numeric labels written with a '.' decimal point.");
+            }
+
+            prepared.Add(new HoldoutExample(id, label));
+        }
+
+        if (prepared.Count == 0)
+        {
+            throw AccountantException.BadInput("the holdout has no examples; give a labels file with a header and at least one row.");
+        }
+
+        prepared.Sort((a, b) => string.CompareOrdinal(a.Id, b.Id));
+        return Store.AddHoldout(name, metric, range, prepared);
+    }
+
+    /// <summary>The registered holdout of that name, or a clear error.</summary>
+    public Holdout Holdout(string name) =>
+        Store.FindHoldout(name) ?? throw AccountantException.BadArguments(
+            Store.Holdouts().Count == 0
+                ? $"there is no holdout named '{name}'; the ledger has none yet; register one with 'accountant holdout add {name} --labels FILE'."
+                : $"there is no holdout named '{name}'; 'accountant holdout list' shows the registered ones.");
+
+    /// <summary>Records one look from its predictions; returns it with its number and observed score.</summary>
+    public Look Record(string holdout, string configuration, IReadOnlyList<Prediction> predictions, string? search = null, string? stage = null, bool adaptive = false) =>
+        RecordMany(holdout, [new LookInput { Configuration = configuration, Predictions = predictions, Search = search, Stage = stage, Adaptive = adaptive }])[0];
+
+    /// <summary>Records one look from its score alone.</summary>
+    public Look Record(string holdout, string configuration, double score, string? search = null, string? stage = null, bool adaptive = false) =>
+        RecordMany(holdout, [new LookInput { Configuration = configuration, Score = score, Search = search, Stage = stage, Adaptive = adaptive }])[0];
+
+    /// <summary>
+    /// Records many looks in one transaction: every input is checked first, and if any is bad nothing is written.
+    /// Errors name the input's position (1-based).
+    /// </summary>
+    public IReadOnlyList<Look> RecordMany(string holdoutName, IReadOnlyList<LookInput> inputs, Func<int, string>? describe = null)
+    {
+        var holdout = Holdout(holdoutName);
+        IReadOnlyList<HoldoutExample>? examples = null;
+        var prepared = new List<NewLook>(inputs.Count);
+        for (var i = 0; i < inputs.Count; i++)
+        {
+            try
+            {
+                prepared.Add(Prepare(holdout, inputs[i], ref examples));
+            }
+            catch (AccountantException e) when (inputs.Count > 1 || describe is not null)
+            {
+                var where = describe?.Invoke(i) ?? $"look {i + 1} of {inputs.Count}";
+                throw new AccountantException(e.Kind, $"{where}: {e.Message} Nothing was recorded.", e);
+            }
+        }
+
+        return Store.AppendLooks(holdout, prepared);
+    }
+
+    private NewLook Prepare(Holdout holdout, LookInput input, ref IReadOnlyList<HoldoutExample>? examples)
+    {
+        var configuration = ConfigurationJson.Canonicalize(input.Configuration);
+        if (input.Search is not null) CheckName(input.Search, "search label");
+        if (input.Stage is not null) CheckName(input.Stage, "stage");
+        if (input.Predictions is not null && input.Score is not null)
+        {
+            throw AccountantException.BadArguments("give either predictions or a score for a look, not both.");
+        }
+
+        if (input.Predictions is { } predictions)
+        {
+            examples ??= Store.Examples(holdout);
+            var losses = Losses.Compute(holdout, examples, predictions);
+            return new NewLook(configuration, losses.Score, losses.Encoding, losses.Bytes, input.Search, input.Stage, input.Adaptive);
+        }
+
+        if (input.Score is not { } score)
+        {
+            throw AccountantException.BadArguments("a look needs its predictions or its score; give --predictions FILE or --score X.");
+        }
+
+        Losses.CheckScore(holdout, score);
+        return new NewLook(configuration, score, LossEncoding.None, null, input.Search, input.Stage, input.Adaptive);
+    }
+
+    /// <summary>Marks a look as a mistake. It cannot be selected any more, and it still counts.</summary>
+    public LookVoid Void(string holdoutName, int lookNumber, string reason)
+    {
+        if (string.IsNullOrWhiteSpace(reason))
+        {
+            throw AccountantException.BadArguments("a void needs a reason; give --reason TEXT saying why the look was a mistake.");
+        }
+
+        return Store.AppendVoid(Holdout(holdoutName), lookNumber, reason);
+    }
+
+    public Statement Statement(string holdoutName, StatementOptions? options = null)
+    {
+        var holdout = Holdout(holdoutName);
+        return StatementBuilder.Build(holdout, Store.Looks(holdout), Store.Voids(holdout), Store.ChainHead(), options);
+    }
+
+    public ChainReport Verify(string? expectedHead = null) => Store.Verify(expectedHead);
+
+    private static void CheckName(string name, string what)
+    {
+        if (string.IsNullOrWhiteSpace(name))
+        {
+            throw AccountantException.BadArguments($"the {what} is empty; give a short name such as 'validation'.");
+        }
+
+        if (name.Length > MaxNameLength)
+        {
+            throw AccountantException.BadArguments($"the {what} is {name.Length} characters long; keep it within {MaxNameLength}.");
+        }
+
+        if (name.Any(char.IsControl))
+        {
+            throw AccountantException.BadArguments($"the {what} contains control characters (such as a line break or tab); use printable characters only.");
+        }
+    }
+
+    public void Dispose() => Store.Dispose();
+}

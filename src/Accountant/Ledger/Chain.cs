@@ -1,0 +1,98 @@
+using System.Globalization;
+using System.Security.Cryptography;
+using System.Text.Encodings.Web;
+using System.Text.Json;
+
+namespace Accountant.Ledger;
+
+/// <summary>
+/// The hash chain: entry i carries hash_i = SHA-256(hash_{i−1} ‖ canonical bytes of entry i), with hash_0 = 32 zero bytes.
+/// The canonical bytes are compact JSON with a fixed field order, written here and nowhere else, so that every
+/// backend hashes the same entry the same way. Blobs enter through their SHA-256 digests.
+/// </summary>
+public static class Chain
+{
+    public const int HashSize = 32;
+
+    public static byte[] Genesis { get; } = new byte[HashSize];
+
+    private static readonly JsonWriterOptions Options = new() { Encoder = JavaScriptEncoder.UnsafeRelaxedJsonEscaping };
+
+    public static byte[] Link(byte[] previous, byte[] canonical)
+    {
+        var buffer = new byte[previous.Length + canonical.Length];
+        previous.CopyTo(buffer, 0);
+        canonical.CopyTo(buffer, previous.Length);
+        return SHA256.HashData(buffer);
+    }
+
+    public static string Hex(byte[] hash) => Convert.ToHexStringLower(hash);
+
+    public static string? BlobDigest(byte[]? blob) => blob is null ? null : Convert.ToHexStringLower(SHA256.HashData(blob));
+
+    public static byte[] HoldoutEntry(long sequence, string name, int size, Metric metric, double lossLow, double lossHigh,
+        string fingerprint, byte[] ids, byte[] labels, string createdAt) => Write(w =>
+    {
+        w.WriteString("kind", "holdout");
+        w.WriteNumber("seq", sequence);
+        w.WriteString("name", name);
+        w.WriteNumber("size", size);
+        w.WriteString("metric", metric.Name());
+        w.WriteString("lossLow", Number(lossLow));
+        w.WriteString("lossHigh", Number(lossHigh));
+        w.WriteString("fingerprint", fingerprint);
+        w.WriteString("ids", BlobDigest(ids));
+        w.WriteString("labels", BlobDigest(labels));
+        w.WriteString("createdAt", createdAt);
+    });
+
+    public static byte[] LookEntry(long sequence, string holdoutFingerprint, int number, string configuration, string configurationDigest,
+        double score, bool adaptive, LossEncoding encoding, byte[]? losses, string? search, string? stage, string recordedAt) => Write(w =>
+    {
+        w.WriteString("kind", "look");
+        w.WriteNumber("seq", sequence);
+        w.WriteString("holdout", holdoutFingerprint);
+        w.WriteNumber("number", number);
+        w.WriteString("configuration", configuration);
+        w.WriteString("configurationDigest", configurationDigest);
+        w.WriteString("score", Number(score));
+        w.WriteBoolean("adaptive", adaptive);
+        w.WriteNumber("lossEncoding", (int)encoding);
+        w.WriteString("losses", BlobDigest(losses));
+        w.WriteString("search", search);
+        w.WriteString("stage", stage);
+        w.WriteString("recordedAt", recordedAt);
+    });
+
+    public static byte[] VoidEntry(long sequence, string holdoutFingerprint, int lookNumber, string reason, string recordedAt) => Write(w =>
+    {
+        w.WriteString("kind", "void");
+        w.WriteNumber("seq", sequence);
+        w.WriteString("holdout", holdoutFingerprint);
+        w.WriteNumber("look", lookNumber);
+        w.WriteString("reason", reason);
+        w.WriteString("recordedAt", recordedAt);
+    });
+
+    /// <summary>Shortest round-trip text of a double (deterministic since .NET Core 3.0).</summary>
+    public static string Number(double value) => value.ToString("R", CultureInfo.InvariantCulture);
+
+    public static string Timestamp(DateTimeOffset time) => time.ToUniversalTime().ToString("yyyy-MM-dd'T'HH:mm:ss.fffffff'Z'", CultureInfo.InvariantCulture);
+
+    public static DateTimeOffset ParseTimestamp(string text) =>
+        DateTimeOffset.ParseExact(text, "yyyy-MM-dd'T'HH:mm:ss.fffffff'Z'", CultureInfo.InvariantCulture, DateTimeStyles.AssumeUniversal);
+
+    private static byte[] Write(Action<Utf8JsonWriter> body)
+    {
+        using var stream = new MemoryStream();
+        using (var writer = new Utf8JsonWriter(stream, Options))
+        {
+            writer.WriteStartObject();
+            writer.WriteNumber("v", 1);
+            body(writer);
+            writer.WriteEndObject();
+        }
+
+        return stream.ToArray();
+    }
+}

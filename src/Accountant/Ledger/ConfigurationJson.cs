@@ -1,0 +1,105 @@
+using System.Security.Cryptography;
+using System.Text;
+using System.Text.Encodings.Web;
+using System.Text.Json;
+
+namespace Accountant.Ledger;
+
+/// <summary>
+/// Canonical JSON for configurations: an object, keys sorted by ordinal, no insignificant whitespace, numbers
+/// kept as written, strings re-encoded without escaping non-ASCII text. The digest is SHA-256 of its UTF-8 bytes.
+/// </summary>
+public static class ConfigurationJson
+{
+    private static readonly JsonWriterOptions WriterOptions = new()
+    {
+        Encoder = JavaScriptEncoder.UnsafeRelaxedJsonEscaping,
+        Indented = false,
+    };
+
+    /// <summary>The canonical form of a configuration, or a bad-input error naming what is wrong with it.</summary>
+    public static string Canonicalize(string json)
+    {
+        JsonDocument document;
+        try
+        {
+            document = JsonDocument.Parse(json, new JsonDocumentOptions { AllowTrailingCommas = false, CommentHandling = JsonCommentHandling.Disallow, MaxDepth = 64 });
+        }
+        catch (JsonException e)
+        {
+            throw AccountantException.BadInput($"the configuration is not valid JSON ({FirstSentence(e.Message)}); give an object such as {{\"trainer\":\"fasttree\",\"leaves\":31}}.");
+        }
+
+        using (document)
+        {
+            if (document.RootElement.ValueKind != JsonValueKind.Object)
+            {
+                throw AccountantException.BadInput("the configuration must be a JSON object, such as {\"trainer\":\"fasttree\",\"leaves\":31}.");
+            }
+
+            using var buffer = new MemoryStream();
+            using (var writer = new Utf8JsonWriter(buffer, WriterOptions))
+            {
+                Write(writer, document.RootElement);
+            }
+
+            return Encoding.UTF8.GetString(buffer.ToArray());
+        }
+    }
+
+    public static string Digest(string canonical) =>
+        Convert.ToHexStringLower(SHA256.HashData(Encoding.UTF8.GetBytes(canonical)));
+
+    private static void Write(Utf8JsonWriter writer, JsonElement element)
+    {
+        switch (element.ValueKind)
+        {
+            case JsonValueKind.Object:
+                var properties = element.EnumerateObject().ToList();
+                var names = new HashSet<string>(StringComparer.Ordinal);
+                foreach (var property in properties)
+                {
+                    if (!names.Add(property.Name))
+                    {
+                        throw AccountantException.BadInput($"the configuration names the key '{property.Name}' twice; give each hyperparameter once.");
+                    }
+                }
+
+                writer.WriteStartObject();
+                foreach (var property in properties.OrderBy(p => p.Name, StringComparer.Ordinal))
+                {
+                    writer.WritePropertyName(property.Name);
+                    Write(writer, property.Value);
+                }
+
+                writer.WriteEndObject();
+                break;
+            case JsonValueKind.Array:
+                writer.WriteStartArray();
+                foreach (var item in element.EnumerateArray()) Write(writer, item);
+                writer.WriteEndArray();
+                break;
+            case JsonValueKind.String:
+                writer.WriteStringValue(element.GetString());
+                break;
+            case JsonValueKind.Number:
+                writer.WriteRawValue(element.GetRawText(), skipInputValidation: true);
+                break;
+            case JsonValueKind.True:
+                writer.WriteBooleanValue(true);
+                break;
+            case JsonValueKind.False:
+                writer.WriteBooleanValue(false);
+                break;
+            default:
+                writer.WriteNullValue();
+                break;
+        }
+    }
+
+    private static string FirstSentence(string message)
+    {
+        var cut = message.IndexOf(". ", StringComparison.Ordinal);
+        return (cut > 0 ? message[..cut] : message).TrimEnd('.');
+    }
+}

@@ -1,0 +1,43 @@
+using Accountant.Bounds;
+
+namespace Accountant.Ledger;
+
+/// <summary>
+/// The narrow interface a ledger backend implements. Every write is one transaction that extends the chain;
+/// nothing is ever updated or deleted. Implementations throw <see cref="AccountantException"/> for anything the
+/// user can fix, and leave the ledger unchanged when they do.
+/// </summary>
+public interface ILedgerStore : IDisposable
+{
+    /// <summary>Where the ledger lives (a file path), for messages.</summary>
+    string Location { get; }
+
+    /// <summary>Registers a holdout. Examples are sorted by id (ordinal) with canonical labels.</summary>
+    Holdout AddHoldout(string name, Metric metric, LossRange range, IReadOnlyList<HoldoutExample> sortedExamples);
+
+    Holdout? FindHoldout(string name);
+
+    IReadOnlyList<Holdout> Holdouts();
+
+    /// <summary>The holdout's examples in id order.</summary>
+    IReadOnlyList<HoldoutExample> Examples(Holdout holdout);
+
+    /// <summary>Appends looks in one transaction (all or none), numbering them after the holdout's last look.</summary>
+    IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks);
+
+    LookVoid AppendVoid(Holdout holdout, int lookNumber, string reason);
+
+    /// <summary>The holdout's looks in number order, without their per-example losses.</summary>
+    IReadOnlyList<Look> Looks(Holdout holdout);
+
+    IReadOnlyList<LookVoid> Voids(Holdout holdout);
+
+    /// <summary>The stored per-example losses of one look, or null when only its score is known.</summary>
+    byte[]? LossBytes(Holdout holdout, int lookNumber);
+
+    /// <summary>The hash of the last entry, hex, or null for an empty ledger.</summary>
+    string? ChainHead();
+
+    /// <summary>Recomputes the chain from the stored rows and names the first entry that does not match.</summary>
+    ChainReport Verify(string? expectedHead = null);
+}

@@ -1,0 +1,521 @@
+using System.Globalization;
+using Accountant.Bounds;
+using Microsoft.Data.Sqlite;
+
+namespace Accountant.Ledger;
+
+/// <summary>
+/// The ledger in one SQLite file: WAL journal, a busy timeout, every write in a <c>BEGIN IMMEDIATE</c> transaction,
+/// <c>PRAGMA user_version</c> for the schema version and <c>PRAGMA application_id</c> to recognise the file.
+/// Tables hold typed rows; the <c>entries</c> table holds the chain, one row per holdout, look or void, and
+/// <see cref="Verify"/> recomputes every hash from the typed rows, so an edit to any row breaks the chain.
+/// Triggers refuse UPDATE and DELETE, so the append-only rule also holds against careless SQL.
+/// </summary>
+public sealed class SqliteLedgerStore : ILedgerStore
+{
+    /// <summary>The schema version this build writes (PRAGMA user_version).</summary>
+    public const int SchemaVersion = 1;
+
+    /// <summary>PRAGMA application_id: the bytes "ACNT".</summary>
+    public const int ApplicationId = 0x41434E54;
+
+    /// <summary>How long a writer waits for another writer's lock before giving up.</summary>
+    public static readonly TimeSpan BusyTimeout = TimeSpan.FromSeconds(30);
+
+    private readonly SqliteConnection _connection;
+    private readonly TimeProvider _clock;
+
+    private SqliteLedgerStore(string path, SqliteConnection connection, TimeProvider clock)
+    {
+        Location = path;
+        _connection = connection;
+        _clock = clock;
+    }
+
+    public string Location { get; }
+
+    /// <summary>Creates a new, empty ledger; refuses if the file exists.</summary>
+    public static SqliteLedgerStore Create(string path, TimeProvider? clock = null)
+    {
+        if (File.Exists(path))
+        {
+            throw new AccountantException(ErrorKind.LedgerUnusable, $"a file already exists at '{path}'; choose another --ledger path or use the existing ledger.");
+        }
+
+        var directory = Path.GetDirectoryName(Path.GetFullPath(path));
+        if (directory is not null && !Directory.Exists(directory))
+        {
+            throw new AccountantException(ErrorKind.LedgerUnusable, $"the folder '{directory}' does not exist; create it first or choose another --ledger path.");
+        }
+
+        return Open(path, clock, create: true);
+    }
+
+    /// <summary>Opens an existing ledger, or creates it when <paramref name="create"/> is set and the file is missing.</summary>
+    public static SqliteLedgerStore Open(string path, TimeProvider? clock = null, bool create = false)
+    {
+        var exists = File.Exists(path);
+        if (!exists && !create)
+        {
+            throw new AccountantException(ErrorKind.LedgerUnusable, $"there is no ledger at '{path}'; create one with 'accountant init --ledger {path}' or point --ledger (or ACCOUNTANT_LEDGER) at an existing one.");
+        }
+
+        if (exists && new FileInfo(path).Length > 0 && !HasSqliteHeader(path))
+        {
+            throw new AccountantException(ErrorKind.LedgerUnusable, $"'{path}' is not an Accountant ledger (not a SQLite file); point --ledger at a ledger made by 'accountant init'.");
+        }
+
+        var builder = new SqliteConnectionStringBuilder
+        {
+            DataSource = path,
+            Mode = create ? SqliteOpenMode.ReadWriteCreate : SqliteOpenMode.ReadWrite,
+            Pooling = false,
+            DefaultTimeout = (int)BusyTimeout.TotalSeconds,
+        };
+        var connection = new SqliteConnection(builder.ConnectionString);
+        try
+        {
+            connection.Open();
+            Execute(connection, $"PRAGMA busy_timeout = {(int)BusyTimeout.TotalMilliseconds};");
+            var store = new SqliteLedgerStore(path, connection, clock ?? TimeProvider.System);
+            store.Prepare(allowInitialize: create);
+            return store;
+        }
+        catch (SqliteException e)
+        {
+            connection.Dispose();
+            throw Translate(e, path);
+        }
+        catch
+        {
+            connection.Dispose();
+            throw;
+        }
+    }
+
+    private static bool HasSqliteHeader(string path)
+    {
+        try
+        {
+            using var stream = new FileStream(path, FileMode.Open, FileAccess.Read, FileShare.ReadWrite | FileShare.Delete);
+            var header = new byte[16];
+            var read = stream.Read(header, 0, header.Length);
+            return read == 16 && header.AsSpan().SequenceEqual("SQLite format 3\0"u8);
+        }
+        catch (IOException)
+        {
+            return true; // Let SQLite report what it finds.
+        }
+        catch (UnauthorizedAccessException e)
+        {
+            throw new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' cannot be read ({e.Message}); check its permissions.");
+        }
+    }
+
+    private void Prepare(bool allowInitialize)
+    {
+        var version = Convert.ToInt32(Scalar("PRAGMA user_version;"), CultureInfo.InvariantCulture);
+        var application = Convert.ToInt32(Scalar("PRAGMA application_id;"), CultureInfo.InvariantCulture);
+        var tables = Convert.ToInt64(Scalar("SELECT count(*) FROM sqlite_master;"), CultureInfo.InvariantCulture);
+
+        if (version == 0 && application == 0 && tables == 0)
+        {
+            if (!allowInitialize)
+            {
+                throw new AccountantException(ErrorKind.LedgerUnusable, $"'{Location}' is an empty file, not an Accountant ledger; remove it and run 'accountant init --ledger {Location}'.");
+            }
+
+            Initialize();
+            return;
+        }
+
+        if (application != ApplicationId)
+        {
+            throw new AccountantException(ErrorKind.LedgerUnusable, $"'{Location}' is a SQLite database but not an Accountant ledger; point --ledger at a ledger made by 'accountant init'.");
+        }
+
+        if (version > SchemaVersion)
+        {
+            throw new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{Location}' has schema version {version}, newer than the {SchemaVersion} this accountant understands; upgrade the accountant tool to read it (nothing was changed).");
+        }
+
+        if (version < 1)
+        {
+            throw new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{Location}' has an unknown schema version {version}; it was not made by a released accountant.");
+        }
+
+        TryWal();
+    }
+
+    private void TryWal()
+    {
+        try
+        {
+            Execute(_connection, "PRAGMA journal_mode = WAL;");
+        }
+        catch (SqliteException e) when (e.SqliteErrorCode is 8 /* READONLY */)
+        {
+            // A read-only ledger can still be read; writes will report the problem.
+        }
+    }
+
+    private void Initialize()
+    {
+        Execute(_connection, "PRAGMA journal_mode = WAL;");
+        using var transaction = _connection.BeginTransaction(deferred: false);
+        Execute(_connection, $"""
+            PRAGMA application_id = {ApplicationId};
+            PRAGMA user_version = {SchemaVersion};
+            CREATE TABLE entries (
+                seq       INTEGER PRIMARY KEY,
+                kind      TEXT NOT NULL,
+                prev_hash BLOB NOT NULL,
+                hash      BLOB NOT NULL
+            );
+            CREATE TABLE holdouts (
+                id          INTEGER PRIMARY KEY,
+                seq         INTEGER NOT NULL UNIQUE,
+                name        TEXT NOT NULL UNIQUE,
+                size        INTEGER NOT NULL,
+                metric      TEXT NOT NULL,
+                loss_low    REAL NOT NULL,
+                loss_high   REAL NOT NULL,
+                fingerprint TEXT NOT NULL,
+                ids         BLOB NOT NULL,
+                labels      BLOB NOT NULL,
+                created_at  TEXT NOT NULL
+            );
+            CREATE TABLE looks (
+                seq                  INTEGER PRIMARY KEY,
+                holdout_id           INTEGER NOT NULL,
+                number               INTEGER NOT NULL,
+                configuration        TEXT NOT NULL,
+                configuration_digest TEXT NOT NULL,
+                score                REAL NOT NULL,
+                adaptive             INTEGER NOT NULL,
+                loss_encoding        INTEGER NOT NULL,
+                losses               BLOB,
+                search               TEXT,
+                stage                TEXT,
+                recorded_at          TEXT NOT NULL,
+                UNIQUE (holdout_id, number)
+            );
+            CREATE TABLE voids (
+                seq         INTEGER PRIMARY KEY,
+                holdout_id  INTEGER NOT NULL,
+                look_number INTEGER NOT NULL,
+                reason      TEXT NOT NULL,
+                recorded_at TEXT NOT NULL
+            );
+            """);
+        foreach (var table in new[] { "entries", "holdouts", "looks", "voids" })
+        {
+            Execute(_connection, $"""
+                CREATE TRIGGER {table}_no_update BEFORE UPDATE ON {table} BEGIN SELECT RAISE(ABORT, 'the ledger is append-only'); END;
+                CREATE TRIGGER {table}_no_delete BEFORE DELETE ON {table} BEGIN SELECT RAISE(ABORT, 'the ledger is append-only'); END;
+                """);
+        }
+
+        transaction.Commit();
+    }
+
+    public Holdout AddHoldout(string name, Metric metric, LossRange range, IReadOnlyList<HoldoutExample> sortedExamples) => Guarded(() =>
+    {
+        using var transaction = _connection.BeginTransaction(deferred: false);
+        if (FindHoldout(name) is not null)
+        {
+            throw AccountantException.BadInput($"a holdout named '{name}' is already registered; choose another name (a holdout cannot be replaced).");
+        }
+
+        var fingerprint = Fingerprint.Compute(sortedExamples);
+        var ids = Fingerprint.PackStrings(sortedExamples.Select(e => e.Id));
+        var labels = Fingerprint.PackStrings(sortedExamples.Select(e => e.Label));
+        var created = Chain.Timestamp(_clock.GetUtcNow());
+        var (sequence, previous) = Tail();
+        var canonical = Chain.HoldoutEntry(sequence, name, sortedExamples.Count, metric, range.Low, range.High, fingerprint, ids, labels, created);
+        InsertEntry(sequence, "holdout", previous, Chain.Link(previous, canonical));
+        using (var command = Command("""
+            INSERT INTO holdouts (seq, name, size, metric, loss_low, loss_high, fingerprint, ids, labels, created_at)
+            VALUES ($seq, $name, $size, $metric, $low, $high, $fingerprint, $ids, $labels, $created);
+            """))
+        {
+            command.Parameters.AddWithValue("$seq", sequence);
+            command.Parameters.AddWithValue("$name", name);
+            command.Parameters.AddWithValue("$size", sortedExamples.Count);
+            command.Parameters.AddWithValue("$metric", metric.Name());
+            command.Parameters.AddWithValue("$low", range.Low);
+            command.Parameters.AddWithValue("$high", range.High);
+            command.Parameters.AddWithValue("$fingerprint", fingerprint);
+            command.Parameters.AddWithValue("$ids", ids);
+            command.Parameters.AddWithValue("$labels", labels);
+            command.Parameters.AddWithValue("$created", created);
+            command.ExecuteNonQuery();
+        }
+
+        transaction.Commit();
+        return FindHoldout(name)!;
+    });
+
+    public Holdout? FindHoldout(string name) => Guarded(() =>
+    {
+        using var command = Command("SELECT id, name, size, metric, loss_low, loss_high, fingerprint, created_at FROM holdouts WHERE name = $name;");
+        command.Parameters.AddWithValue("$name", name);
+        using var reader = command.ExecuteReader();
+        return reader.Read() ? ReadHoldout(reader) : null;
+    });
+
+    public IReadOnlyList<Holdout> Holdouts() => Guarded(() =>
+    {
+        using var command = Command("SELECT id, name, size, metric, loss_low, loss_high, fingerprint, created_at FROM holdouts ORDER BY seq;");
+        using var reader = command.ExecuteReader();
+        var holdouts = new List<Holdout>();
+        while (reader.Read()) holdouts.Add(ReadHoldout(reader));
+        return holdouts;
+    });
+
+    private static Holdout ReadHoldout(SqliteDataReader reader) => new(
+        reader.GetInt64(0),
+        reader.GetString(1),
+        reader.GetInt32(2),
+        MetricExtensions.Parse(reader.GetString(3)),
+        new LossRange(reader.GetDouble(4), reader.GetDouble(5)),
+        reader.GetString(6),
+        Chain.ParseTimestamp(reader.GetString(7)));
+
+    public IReadOnlyList<HoldoutExample> Examples(Holdout holdout) => Guarded(() =>
+    {
+        using var command = Command("SELECT ids, labels FROM holdouts WHERE id = $id;");
+        command.Parameters.AddWithValue("$id", holdout.Key);
+        using var reader = command.ExecuteReader();
+        if (!reader.Read())
+        {
+            throw new AccountantException(ErrorKind.Integrity, $"holdout '{holdout.Name}' vanished from the ledger; run 'accountant verify'.");
+        }
+
+        var ids = Fingerprint.UnpackStrings((byte[])reader.GetValue(0));
+        var labels = Fingerprint.UnpackStrings((byte[])reader.GetValue(1));
+        if (ids.Count != labels.Count || ids.Count != holdout.Size)
+        {
+            throw new AccountantException(ErrorKind.Integrity, $"holdout '{holdout.Name}' has damaged examples in the ledger; run 'accountant verify'.");
+        }
+
+        return ids.Select((id, i) => new HoldoutExample(id, labels[i])).ToList();
+    });
+
+    public IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks) => Guarded(() =>
+    {
+        using var transaction = _connection.BeginTransaction(deferred: false);
+        var number = Convert.ToInt32(ScalarWith("SELECT COALESCE(MAX(number), 0) FROM looks WHERE holdout_id = $id;", ("$id", holdout.Key)), CultureInfo.InvariantCulture);
+        var (sequence, previous) = Tail();
+        var recorded = Chain.Timestamp(_clock.GetUtcNow());
+        var written = new List<Look>(looks.Count);
+        using var insert = Command("""
+            INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, recorded_at)
+            VALUES ($seq, $holdout, $number, $configuration, $digest, $score, $adaptive, $encoding, $losses, $search, $stage, $recorded);
+            """);
+        var parameters = new[] { "$seq", "$holdout", "$number", "$configuration", "$digest", "$score", "$adaptive", "$encoding", "$losses", "$search", "$stage", "$recorded" }
+            .Select(name => insert.Parameters.Add(name, SqliteType.Text)).ToArray();
+        insert.Prepare();
+        using var entry = EntryInsertCommand();
+        foreach (var look in looks)
+        {
+            number++;
+            var digest = ConfigurationJson.Digest(look.Configuration);
+            var canonical = Chain.LookEntry(sequence, holdout.Fingerprint, number, look.Configuration, digest, look.Score, look.Adaptive,
+                look.LossEncoding, look.Losses, look.Search, look.Stage, recorded);
+            var hash = Chain.Link(previous, canonical);
+            entry.Parameters["$seq"].Value = sequence;
+            entry.Parameters["$kind"].Value = "look";
+            entry.Parameters["$prev"].Value = previous;
+            entry.Parameters["$hash"].Value = hash;
+            entry.ExecuteNonQuery();
+
+            parameters[0].Value = sequence;
+            parameters[1].Value = holdout.Key;
+            parameters[2].Value = number;
+            parameters[3].Value = look.Configuration;
+            parameters[4].Value = digest;
+            parameters[5].SqliteType = SqliteType.Real;
+            parameters[5].Value = look.Score;
+            parameters[6].Value = look.Adaptive ? 1 : 0;
+            parameters[7].Value = (int)look.LossEncoding;
+            parameters[8].SqliteType = SqliteType.Blob;
+            parameters[8].Value = (object?)look.Losses ?? DBNull.Value;
+            parameters[9].Value = (object?)look.Search ?? DBNull.Value;
+            parameters[10].Value = (object?)look.Stage ?? DBNull.Value;
+            parameters[11].Value = recorded;
+            insert.ExecuteNonQuery();
+
+            written.Add(new Look(sequence, number, look.Configuration, digest, look.Score, look.LossEncoding, look.Search, look.Stage, look.Adaptive, Chain.ParseTimestamp(recorded)));
+            previous = hash;
+            sequence++;
+        }
+
+        transaction.Commit();
+        return written;
+    });
+
+    public LookVoid AppendVoid(Holdout holdout, int lookNumber, string reason) => Guarded(() =>
+    {
+        using var transaction = _connection.BeginTransaction(deferred: false);
+        var exists = Convert.ToInt64(ScalarWith("SELECT count(*) FROM looks WHERE holdout_id = $id AND number = $number;", ("$id", holdout.Key), ("$number", lookNumber)), CultureInfo.InvariantCulture);
+        if (exists == 0)
+        {
+            throw AccountantException.BadArguments($"holdout '{holdout.Name}' has no look {lookNumber}; 'accountant statement {holdout.Name}' lists how many looks it has.");
+        }
+
+        var recorded = Chain.Timestamp(_clock.GetUtcNow());
+        var (sequence, previous) = Tail();
+        var canonical = Chain.VoidEntry(sequence, holdout.Fingerprint, lookNumber, reason, recorded);
+        InsertEntry(sequence, "void", previous, Chain.Link(previous, canonical));
+        using (var command = Command("INSERT INTO voids (seq, holdout_id, look_number, reason, recorded_at) VALUES ($seq, $id, $number, $reason, $recorded);"))
+        {
+            command.Parameters.AddWithValue("$seq", sequence);
+            command.Parameters.AddWithValue("$id", holdout.Key);
+            command.Parameters.AddWithValue("$number", lookNumber);
+            command.Parameters.AddWithValue("$reason", reason);
+            command.Parameters.AddWithValue("$recorded", recorded);
+            command.ExecuteNonQuery();
+        }
+
+        transaction.Commit();
+        return new LookVoid(sequence, lookNumber, reason, Chain.ParseTimestamp(recorded));
+    });
+
+    public IReadOnlyList<Look> Looks(Holdout holdout) => Guarded(() =>
+    {
+        using var command = Command("""
+            SELECT seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at
+            FROM looks WHERE holdout_id = $id ORDER BY number;
+            """);
+        command.Parameters.AddWithValue("$id", holdout.Key);
+        using var reader = command.ExecuteReader();
+        var looks = new List<Look>();
+        while (reader.Read())
+        {
+            looks.Add(new Look(
+                reader.GetInt64(0),
+                reader.GetInt32(1),
+                reader.GetString(2),
+                reader.GetString(3),
+                reader.GetDouble(4),
+                (LossEncoding)reader.GetInt32(5),
+                reader.IsDBNull(6) ? null : reader.GetString(6),
+                reader.IsDBNull(7) ? null : reader.GetString(7),
+                reader.GetInt32(8) != 0,
+                Chain.ParseTimestamp(reader.GetString(9))));
+        }
+
+        return looks;
+    });
+
+    public IReadOnlyList<LookVoid> Voids(Holdout holdout) => Guarded(() =>
+    {
+        using var command = Command("SELECT seq, look_number, reason, recorded_at FROM voids WHERE holdout_id = $id ORDER BY seq;");
+        command.Parameters.AddWithValue("$id", holdout.Key);
+        using var reader = command.ExecuteReader();
+        var voids = new List<LookVoid>();
+        while (reader.Read())
+        {
+            voids.Add(new LookVoid(reader.GetInt64(0), reader.GetInt32(1), reader.GetString(2), Chain.ParseTimestamp(reader.GetString(3))));
+        }
+
+        return voids;
+    });
+
+    public byte[]? LossBytes(Holdout holdout, int lookNumber) => Guarded(() =>
+    {
+        var value = ScalarWith("SELECT losses FROM looks WHERE holdout_id = $id AND number = $number;", ("$id", holdout.Key), ("$number", lookNumber));
+        return value as byte[];
+    });
+
+    public string? ChainHead() => Guarded(() =>
+    {
+        var value = Scalar("SELECT hash FROM entries ORDER BY seq DESC LIMIT 1;");
+        return value is byte[] hash ? Chain.Hex(hash) : null;
+    });
+
+    public ChainReport Verify(string? expectedHead = null) => Guarded(() => new SqliteChainVerifier(_connection).Run(expectedHead));
+
+    private (long Sequence, byte[] Previous) Tail()
+    {
+        using var command = Command("SELECT seq, hash FROM entries ORDER BY seq DESC LIMIT 1;");
+        using var reader = command.ExecuteReader();
+        return reader.Read() ? (reader.GetInt64(0) + 1, (byte[])reader.GetValue(1)) : (1L, Chain.Genesis);
+    }
+
+    private SqliteCommand EntryInsertCommand()
+    {
+        var command = Command("INSERT INTO entries (seq, kind, prev_hash, hash) VALUES ($seq, $kind, $prev, $hash);");
+        command.Parameters.Add("$seq", SqliteType.Integer);
+        command.Parameters.Add("$kind", SqliteType.Text);
+        command.Parameters.Add("$prev", SqliteType.Blob);
+        command.Parameters.Add("$hash", SqliteType.Blob);
+        command.Prepare();
+        return command;
+    }
+
+    private void InsertEntry(long sequence, string kind, byte[] previous, byte[] hash)
+    {
+        using var command = EntryInsertCommand();
+        command.Parameters["$seq"].Value = sequence;
+        command.Parameters["$kind"].Value = kind;
+        command.Parameters["$prev"].Value = previous;
+        command.Parameters["$hash"].Value = hash;
+        command.ExecuteNonQuery();
+    }
+
+    private SqliteCommand Command(string sql)
+    {
+        var command = _connection.CreateCommand();
+        command.CommandText = sql;
+        return command;
+    }
+
+    private object? Scalar(string sql)
+    {
+        using var command = Command(sql);
+        return command.ExecuteScalar();
+    }
+
+    private object? ScalarWith(string sql, params (string Name, object Value)[] parameters)
+    {
+        using var command = Command(sql);
+        foreach (var (name, value) in parameters) command.Parameters.AddWithValue(name, value);
+        return command.ExecuteScalar();
+    }
+
+    private static void Execute(SqliteConnection connection, string sql)
+    {
+        using var command = connection.CreateCommand();
+        command.CommandText = sql;
+        command.ExecuteNonQuery();
+    }
+
+    private T Guarded<T>(Func<T> action)
+    {
+        try
+        {
+            return action();
+        }
+        catch (SqliteException e)
+        {
+            throw Translate(e, Location);
+        }
+    }
+
+    /// <summary>Turns SQLite's result codes into errors that say what to do.</summary>
+    internal static AccountantException Translate(SqliteException e, string path) => e.SqliteErrorCode switch
+    {
+        5 or 6 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' stayed locked by another writer for more than {BusyTimeout.TotalSeconds:0} s; retry when the other process has finished (nothing was written).", e),
+        8 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' is read-only; make the file and its folder writable, or point --ledger at a writable copy (nothing was written).", e),
+        13 => new AccountantException(ErrorKind.LedgerUnusable, $"the disk holding the ledger '{path}' is full; free space and retry (nothing was written).", e),
+        11 => new AccountantException(ErrorKind.Integrity, $"the ledger '{path}' is damaged at the SQLite level ({e.Message}); restore it from a copy and run 'accountant verify'.", e),
+        26 => new AccountantException(ErrorKind.LedgerUnusable, $"'{path}' is not an Accountant ledger (not a SQLite database); point --ledger at a ledger made by 'accountant init'.", e),
+        14 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' cannot be opened ({e.Message}); check that the path and its folder exist and are accessible.", e),
+        19 when e.Message.Contains("append-only", StringComparison.Ordinal) => new AccountantException(ErrorKind.Integrity, "the ledger is append-only: entries cannot be changed or removed (void a look instead).", e),
+        _ => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' could not be used: {e.Message.TrimEnd('.')} (SQLite code {e.SqliteErrorCode}); nothing was written.", e),
+    };
+
+    public void Dispose() => _connection.Dispose();
+}

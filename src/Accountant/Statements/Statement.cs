@@ -1,0 +1,57 @@
+using Accountant.Bounds;
+using Accountant.Ledger;
+
+namespace Accountant.Statements;
+
+/// <summary>Options for a statement. Confidence is 1 − δ.</summary>
+public sealed record StatementOptions
+{
+    public double Confidence { get; init; } = 0.95;
+
+    /// <summary>The margin the budget is measured against.</summary>
+    public double Tolerance { get; init; } = 0.02;
+
+    public Sidedness Sided { get; init; } = Sidedness.OneSided;
+
+    public double Delta => 1.0 - Confidence;
+}
+
+/// <summary>One method's corrected bound on the selected look's true score.</summary>
+/// <param name="Method">The method's name, e.g. <c>binomial-union</c>.</param>
+/// <param name="Bound">The conservative side: an upper bound on an error, a lower bound on an accuracy.</param>
+/// <param name="Margin">|Bound − observed|.</param>
+/// <param name="Guarantee">True when the bound holds for any distribution (given i.i.d. examples and the stated adaptivity).</param>
+/// <param name="Lower">The interval's lower end on the metric's own scale (two-sided statements; else the range's end).</param>
+/// <param name="Upper">The interval's upper end on the metric's own scale.</param>
+/// <param name="Reference">Where the method is published.</param>
+public sealed record BoundLine(string Method, double Bound, double Margin, bool Guarantee, double Lower, double Upper, string Reference);
+
+/// <summary>Looks used and left at a tolerance: the most looks whose margin stays within it.</summary>
+public sealed record Budget(double Tolerance, string Method, long MaxLooks, long LooksUsed)
+{
+    public long LooksLeft => Math.Max(0, MaxLooks - LooksUsed);
+
+    public bool Overused => LooksUsed > MaxLooks;
+}
+
+/// <summary>A warning with a stable code that scripts can match.</summary>
+public sealed record StatementWarning(string Code, string Message);
+
+/// <summary>The accountant's report on one holdout.</summary>
+public sealed record Statement(
+    Holdout Holdout,
+    StatementOptions Options,
+    int Looks,
+    int AdaptiveLooks,
+    int VoidedLooks,
+    int ScoreOnlyLooks,
+    Look? Best,
+    IReadOnlyList<BoundLine> Bounds,
+    Budget Budget,
+    string? ChainHead,
+    IReadOnlyList<StatementWarning> Warnings,
+    IReadOnlyList<string> Cautions)
+{
+    /// <summary>The default method's line: binomial-union for 0/1 losses, hoeffding-union otherwise.</summary>
+    public BoundLine? Primary => Bounds.Count > 0 ? Bounds[0] : null;
+}
