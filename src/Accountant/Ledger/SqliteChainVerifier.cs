@@ -35,56 +35,55 @@ internal sealed class SqliteChainVerifier(SqliteConnection connection)
         using var reader = entries.ExecuteReader();
         while (reader.Read())
         {
-            var sequence = reader.GetInt64(0);
-            var kind = reader.GetString(1);
-            var storedPrevious = (byte[])reader.GetValue(2);
-            var storedHash = (byte[])reader.GetValue(3);
-
-            if (sequence != expected)
+            long sequence = expected;
+            try
             {
-                return Bad(expected - 1, expected, $"entry {expected} is missing from the chain (the next entry is {sequence})");
-            }
+                sequence = reader.GetInt64(0);
+                var kind = reader.GetString(1);
+                var storedPrevious = (byte[])reader.GetValue(2);
+                var storedHash = (byte[])reader.GetValue(3);
 
-            if (!storedPrevious.AsSpan().SequenceEqual(previous))
+                if (sequence != expected)
+                {
+                    return Bad(expected - 1, expected, $"entry {expected} is missing from the chain (the next entry is {sequence})");
+                }
+
+                if (!storedPrevious.AsSpan().SequenceEqual(previous))
+                {
+                    return Bad(expected - 1, sequence, $"entry {sequence} does not follow entry {sequence - 1} (its previous hash differs): entries were removed, reordered or inserted");
+                }
+
+                var (canonical, problem) = kind switch
+                {
+                    "holdout" => Holdout(holdout, sequence, holdouts),
+                    "look" => Look(look, sequence, holdouts),
+                    "void" => Void(@void, sequence, holdouts),
+                    _ => ([], $"entry {sequence} has an unknown kind '{kind}'"),
+                };
+
+                if (problem is not null)
+                {
+                    return Bad(expected - 1, sequence, problem);
+                }
+
+                var hash = Chain.Link(previous, canonical);
+                if (!hash.AsSpan().SequenceEqual(storedHash))
+                {
+                    return Bad(expected - 1, sequence, $"entry {sequence} ({kind}) was altered: its contents no longer match its hash");
+                }
+
+                if (!sawExpectedHead && string.Equals(Chain.Hex(hash), expectedHead, StringComparison.OrdinalIgnoreCase))
+                {
+                    sawExpectedHead = true;
+                }
+
+                previous = hash;
+                expected++;
+            }
+            catch (Exception e) when (e is InvalidCastException or FormatException or OverflowException or ArgumentException)
             {
-                return Bad(expected - 1, sequence, $"entry {sequence} does not follow entry {sequence - 1} (its previous hash differs): entries were removed, reordered or inserted");
+                return Bad(expected - 1, sequence, $"entry {sequence} was altered: a stored field has the wrong type or form");
             }
-
-            byte[] canonical;
-            string? problem;
-            switch (kind)
-            {
-                case "holdout":
-                    (canonical, problem) = Holdout(holdout, sequence, holdouts);
-                    break;
-                case "look":
-                    (canonical, problem) = Look(look, sequence, holdouts);
-                    break;
-                case "void":
-                    (canonical, problem) = Void(@void, sequence, holdouts);
-                    break;
-                default:
-                    return Bad(expected - 1, sequence, $"entry {sequence} has an unknown kind '{kind}'");
-            }
-
-            if (problem is not null)
-            {
-                return Bad(expected - 1, sequence, problem);
-            }
-
-            var hash = Chain.Link(previous, canonical);
-            if (!hash.AsSpan().SequenceEqual(storedHash))
-            {
-                return Bad(expected - 1, sequence, $"entry {sequence} ({kind}) was altered: its contents no longer match its hash");
-            }
-
-            if (!sawExpectedHead && string.Equals(Chain.Hex(hash), expectedHead, StringComparison.OrdinalIgnoreCase))
-            {
-                sawExpectedHead = true;
-            }
-
-            previous = hash;
-            expected++;
         }
 
         reader.Close();

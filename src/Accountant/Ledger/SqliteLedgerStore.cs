@@ -502,6 +502,10 @@ public sealed class SqliteLedgerStore : ILedgerStore
         {
             throw Translate(e, Location);
         }
+        catch (Exception e) when (e is InvalidCastException or FormatException or OverflowException)
+        {
+            throw new AccountantException(ErrorKind.Integrity, $"the ledger '{Location}' holds a damaged row ({e.Message.TrimEnd('.')}); run 'accountant verify' to find the first bad entry.", e);
+        }
     }
 
     /// <summary>Turns SQLite's result codes into errors that say what to do.</summary>

@@ -1,0 +1,269 @@
+using Accountant.Bounds;
+using Accountant.Ledger;
+using Accountant.Tests.Support;
+using Microsoft.Data.Sqlite;
+
+namespace Accountant.Tests.Ledger;
+
+public sealed class LedgerTests : IDisposable
+{
+    private readonly TempLedger _temp = new();
+
+    public void Dispose() => _temp.Dispose();
+
+    private (Bookkeeper Book, List<HoldoutExample> Examples) WithHoldout(int n = 40)
+    {
+        var book = _temp.Create();
+        var examples = TempLedger.Examples(n);
+        book.RegisterHoldout("validation", examples);
+        return (book, examples);
+    }
+
+    [Fact]
+    public void Looks_are_numbered_per_holdout_and_survive_reopening()
+    {
+        var (book, examples) = WithHoldout();
+        using (book)
+        {
+            var first = book.Record("validation", """{"trainer":"a","x":1}""", TempLedger.Predictions(examples, 4));
+            var second = book.Record("validation", """{"x":2,"trainer":"a"}""", 0.25);
+            book.RegisterHoldout("other", TempLedger.Examples(10));
+            var third = book.Record("other", "{}", 0.5);
+            Assert.Equal(1, first.Number);
+            Assert.Equal(2, second.Number);
+            Assert.Equal(1, third.Number);
+            Assert.Equal(0.1, first.Score, 15);
+            Assert.Equal("""{"trainer":"a","x":1}""", first.Configuration);
+            Assert.Equal("""{"trainer":"a","x":2}""", second.Configuration);
+        }
+
+        using var reopened = _temp.Open();
+        var looks = reopened.Store.Looks(reopened.Holdout("validation"));
+        Assert.Equal([1, 2], looks.Select(l => l.Number));
+        Assert.Equal(LossEncoding.Bitset, looks[0].LossEncoding);
+        Assert.Equal(LossEncoding.None, looks[1].LossEncoding);
+        var bits = reopened.Store.LossBytes(reopened.Holdout("validation"), 1)!;
+        Assert.Equal(0b0000_1111, bits[0]);
+        var report = reopened.Verify();
+        Assert.True(report.Valid, report.Problem);
+        Assert.Equal(5, report.Entries);
+        Assert.Equal(reopened.Store.ChainHead(), report.Head);
+    }
+
+    [Fact]
+    public void Fingerprint_depends_on_ids_and_labels_not_on_row_order()
+    {
+        var a = TempLedger.Examples(20);
+        var sorted = a.OrderBy(e => e.Id, StringComparer.Ordinal).ToList();
+        var reversed = Enumerable.Reverse(sorted).OrderBy(e => e.Id, StringComparer.Ordinal).ToList();
+        Assert.Equal(Fingerprint.Compute(sorted), Fingerprint.Compute(reversed));
+        var changed = sorted.Select((e, i) => i == 3 ? e with { Label = "2" } : e).ToList();
+        Assert.NotEqual(Fingerprint.Compute(sorted), Fingerprint.Compute(changed));
+        Assert.Equal("1", Fingerprint.CanonicalLabel(" 1.0 "));
+        Assert.Equal("cat", Fingerprint.CanonicalLabel(" cat"));
+    }
+
+    [Fact]
+    public void Regression_losses_are_clipped_float32_and_the_score_is_their_mean()
+    {
+        using var book = _temp.Create();
+        var examples = Enumerable.Range(1, 4).Select(i => new HoldoutExample($"r{i}", (i * 1.5).ToString(System.Globalization.CultureInfo.InvariantCulture))).ToList();
+        book.RegisterHoldout("prices", examples, Metric.AbsoluteError, new LossRange(0, 2));
+        // Labels 1.5, 3, 4.5, 6; predictions off by 0.5, 1, 3 (clipped to 2), 0.
+        var look = book.Record("prices", "{}", [new("r1", "2"), new("r2", "4"), new("r3", "1.5"), new("r4", "6")]);
+        Assert.Equal((0.5 + 1 + 2 + 0) / 4, look.Score, 12);
+        var squared = Bookkeeper.Create(Path.Combine(_temp.Folder, "sq.db"));
+        using (squared)
+        {
+            squared.RegisterHoldout("prices", examples, Metric.SquaredError, new LossRange(0, 10));
+            Assert.Equal((0.25 + 1 + 9 + 0) / 4, squared.Record("prices", "{}", [new("r1", "2"), new("r2", "4"), new("r3", "1.5"), new("r4", "6")]).Score, 12);
+        }
+    }
+
+    public static TheoryData<string, Func<List<HoldoutExample>, List<Prediction>>> BadPredictions() => new()
+    {
+        { "missing id", ex => TempLedger.Predictions(ex, 0).Skip(1).ToList() },
+        { "extra id", ex => [.. TempLedger.Predictions(ex, 0), new Prediction("zzz", "1")] },
+        { "duplicated id", ex => [.. TempLedger.Predictions(ex, 0), TempLedger.Predictions(ex, 0)[5]] },
+        { "different label", ex => TempLedger.Predictions(ex, 0).Select((p, i) => i == 2 ? p with { Label = p.Value == "1" ? "0" : "1" } : p with { Label = p.Value }).ToList() },
+        { "empty prediction", ex => TempLedger.Predictions(ex, 0).Select((p, i) => i == 0 ? p with { Value = " " } : p).ToList() },
+    };
+
+    [Theory]
+    [MemberData(nameof(BadPredictions))]
+    public void Predictions_that_do_not_match_the_holdout_are_refused_and_nothing_is_written(string what, Func<List<HoldoutExample>, List<Prediction>> make)
+    {
+        var (book, examples) = WithHoldout();
+        using (book)
+        {
+            var head = book.Store.ChainHead();
+            var error = Assert.Throws<AccountantException>(() => book.Record("validation", "{}", make(examples)));
+            Assert.Equal(ErrorKind.BadInput, error.Kind);
+            Assert.Equal(head, book.Store.ChainHead());
+            Assert.Empty(book.Store.Looks(book.Holdout("validation")));
+            Assert.False(string.IsNullOrWhiteSpace(what));
+        }
+    }
+
+    [Theory]
+    [InlineData(double.NaN)]
+    [InlineData(double.PositiveInfinity)]
+    [InlineData(-0.01)]
+    [InlineData(1.5)]
+    [InlineData(87.5)]
+    public void Bad_scores_are_refused_before_anything_is_written(double score)
+    {
+        var (book, _) = WithHoldout();
+        using (book)
+        {
+            var head = book.Store.ChainHead();
+            var error = Assert.Throws<AccountantException>(() => book.Record("validation", "{}", score));
+            Assert.Equal(ErrorKind.BadInput, error.Kind);
+            Assert.Equal(head, book.Store.ChainHead());
+        }
+    }
+
+    [Fact]
+    public void A_batch_with_one_bad_look_writes_nothing_and_names_the_look()
+    {
+        var (book, _) = WithHoldout();
+        using (book)
+        {
+            var inputs = new[] { 0.1, 0.2, double.NaN, 0.3 }.Select(s => new LookInput { Configuration = "{}", Score = s }).ToList();
+            var error = Assert.Throws<AccountantException>(() => book.RecordMany("validation", inputs));
+            Assert.StartsWith("look 3 of 4:", error.Message);
+            Assert.Empty(book.Store.Looks(book.Holdout("validation")));
+        }
+    }
+
+    [Theory]
+    [InlineData("not json")]
+    [InlineData("[1,2]")]
+    [InlineData("""{"a":1,"a":2}""")]
+    [InlineData("""{"a":1,}""")]
+    public void Invalid_configurations_are_refused(string configuration)
+    {
+        var (book, _) = WithHoldout();
+        using (book)
+        {
+            Assert.Equal(ErrorKind.BadInput, Assert.Throws<AccountantException>(() => book.Record("validation", configuration, 0.1)).Kind);
+        }
+    }
+
+    [Fact]
+    public void Holdouts_with_duplicate_or_empty_ids_are_refused()
+    {
+        using var book = _temp.Create();
+        var duplicate = new List<HoldoutExample> { new("a", "1"), new(" a ", "0") };
+        Assert.Contains("share the id 'a'", Assert.Throws<AccountantException>(() => book.RegisterHoldout("h", duplicate)).Message);
+        Assert.Throws<AccountantException>(() => book.RegisterHoldout("h", [new("", "1")]));
+        Assert.Throws<AccountantException>(() => book.RegisterHoldout("h", []));
+        Assert.Throws<AccountantException>(() => book.RegisterHoldout("h", [new("a", "x")], Metric.AbsoluteError, new LossRange(0, 1)));
+        Assert.Throws<AccountantException>(() => book.RegisterHoldout("h", [new("a", "1")], Metric.AbsoluteError));
+        Assert.Null(book.Store.ChainHead());
+    }
+
+    [Fact]
+    public void A_ledger_with_a_newer_schema_is_refused()
+    {
+        WithHoldout().Book.Dispose();
+        RawSql("PRAGMA user_version = 99;");
+        var error = Assert.Throws<AccountantException>(() => _temp.Open());
+        Assert.Equal(ErrorKind.LedgerUnusable, error.Kind);
+        Assert.Contains("schema version 99", error.Message);
+    }
+
+    [Fact]
+    public void Files_that_are_not_ledgers_are_refused()
+    {
+        File.WriteAllText(_temp.Path, "id,label\n1,0\n");
+        Assert.Contains("not a SQLite file", Assert.Throws<AccountantException>(() => _temp.Open()).Message);
+        File.Delete(_temp.Path);
+        using (var connection = new SqliteConnection($"Data Source={_temp.Path};Pooling=False"))
+        {
+            connection.Open();
+            using var command = connection.CreateCommand();
+            command.CommandText = "CREATE TABLE t (x);";
+            command.ExecuteNonQuery();
+        }
+
+        Assert.Contains("not an Accountant ledger", Assert.Throws<AccountantException>(() => _temp.Open()).Message);
+        Assert.Contains("no ledger at", Assert.Throws<AccountantException>(() => Bookkeeper.Open(Path.Combine(_temp.Folder, "missing.db"))).Message);
+    }
+
+    [Fact]
+    public void Updates_and_deletes_are_refused_by_the_ledger_itself()
+    {
+        WithHoldout().Book.Dispose();
+        var error = Assert.Throws<SqliteException>(() => RawSql("UPDATE holdouts SET name = 'x';", dropTriggers: false));
+        Assert.Contains("append-only", error.Message);
+    }
+
+    /// <summary>A ledger with a holdout, three looks (one with losses) and a void: six entries.</summary>
+    private void Populate()
+    {
+        var (book, examples) = WithHoldout();
+        using (book)
+        {
+            book.Record("validation", """{"trainer":"a"}""", TempLedger.Predictions(examples, 3));
+            book.Record("validation", """{"trainer":"b"}""", 0.2);
+            book.Record("validation", """{"trainer":"c"}""", 0.3);
+            book.Void("validation", 2, "trained on the wrong split");
+            book.Record("validation", """{"trainer":"d"}""", 0.4);
+        }
+    }
+
+    public static TheoryData<string, string, long> Tampering() => new()
+    {
+        { "change a score", "UPDATE looks SET score = 0.01 WHERE number = 3;", 4 },
+        { "change a configuration", """UPDATE looks SET configuration = '{"trainer":"z"}' WHERE number = 2;""", 3 },
+        { "change a configuration and its digest", """UPDATE looks SET configuration = '{"trainer":"z"}', configuration_digest = 'e3b0' WHERE number = 2;""", 3 },
+        { "change a loss bit", "UPDATE looks SET losses = zeroblob(5) WHERE number = 1;", 2 },
+        { "change a holdout label", "UPDATE holdouts SET labels = replace(labels, X'31', X'30');", 1 },
+        { "rename the holdout", "UPDATE holdouts SET name = 'other';", 1 },
+        { "delete a look row", "DELETE FROM looks WHERE number = 2;", 3 },
+        { "delete a look with its entry", "DELETE FROM looks WHERE number = 2; DELETE FROM entries WHERE seq = 3;", 3 },
+        { "delete a void", "DELETE FROM voids; DELETE FROM entries WHERE kind = 'void';", 5 },
+        { "reorder two looks", "UPDATE looks SET number = 100 WHERE number = 2; UPDATE looks SET number = 2 WHERE number = 3; UPDATE looks SET number = 3 WHERE number = 100;", 3 },
+        { "insert a forged look", """INSERT INTO looks VALUES (99, 1, 5, '{}', 'x', 0.0, 0, 0, NULL, NULL, NULL, '2026-01-01T00:00:00.0000000Z');""", 99 },
+        { "change a void's reason", "UPDATE voids SET reason = 'never mind';", 5 },
+    };
+
+    [Theory]
+    [MemberData(nameof(Tampering))]
+    public void Verify_detects_plain_sql_edits_and_names_the_first_bad_entry(string what, string sql, long firstBad)
+    {
+        Populate();
+        RawSql(sql);
+        using var book = _temp.Open();
+        var report = book.Verify();
+        Assert.False(report.Valid, what);
+        Assert.Equal(firstBad, report.FirstBadEntry);
+        Assert.False(string.IsNullOrEmpty(report.Problem));
+    }
+
+    [Fact]
+    public void Truncating_the_tail_is_detected_against_a_printed_head()
+    {
+        Populate();
+        string head;
+        using (var book = _temp.Open()) head = book.Store.ChainHead()!;
+        RawSql("DELETE FROM looks WHERE number = 4; DELETE FROM entries WHERE seq = 6;");
+        using var reopened = _temp.Open();
+        Assert.True(reopened.Verify().Valid); // A clean cut looks like a shorter ledger...
+        var report = reopened.Verify(head);   // ...but not against the head a statement printed.
+        Assert.False(report.Valid);
+        Assert.Contains("truncated", report.Problem);
+        Assert.True(reopened.Verify(reopened.Store.ChainHead()).Valid);
+    }
+
+    private void RawSql(string sql, bool dropTriggers = true)
+    {
+        using var connection = new SqliteConnection($"Data Source={_temp.Path};Pooling=False");
+        connection.Open();
+        using var command = connection.CreateCommand();
+        var drop = string.Join("", new[] { "entries", "holdouts", "looks", "voids" }.Select(t => $"DROP TRIGGER IF EXISTS {t}_no_update; DROP TRIGGER IF EXISTS {t}_no_delete;"));
+        command.CommandText = (dropTriggers ? drop : "") + sql;
+        command.ExecuteNonQuery();
+    }
+}
