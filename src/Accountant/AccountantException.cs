@@ -24,6 +24,6 @@ public sealed class AccountantException : Exception
 
     public ErrorKind Kind { get; }
 
-    internal static AccountantException BadInput(string message) => new(ErrorKind.BadInput, message);
-    internal static AccountantException BadArguments(string message) => new(ErrorKind.BadArguments, message);
+    public static AccountantException BadInput(string message) => new(ErrorKind.BadInput, message);
+    public static AccountantException BadArguments(string message) => new(ErrorKind.BadArguments, message);
 }

@@ -24,6 +24,9 @@ public sealed record LookInput
 
     /// <summary>Whether the configuration was chosen using earlier scores on the same holdout.</summary>
     public bool Adaptive { get; init; }
+
+    /// <summary>How long training took, in seconds, when known.</summary>
+    public double? Seconds { get; init; }
 }
 
 /// <summary>
@@ -109,6 +112,27 @@ public sealed class Bookkeeper : IDisposable
         return Store.AddHoldout(name, metric, range, prepared);
     }
 
+    /// <summary>
+    /// Registers the holdout, or returns the registered one of that name when its examples, metric and range are the same
+    /// (so a rerun keeps counting looks on it); refuses a different holdout under the same name.
+    /// </summary>
+    public Holdout EnsureHoldout(string name, IReadOnlyList<HoldoutExample> examples, Metric metric = Metric.Error, LossRange? lossRange = null)
+    {
+        if (Store.FindHoldout(name) is not { } existing)
+        {
+            return RegisterHoldout(name, examples, metric, lossRange);
+        }
+
+        var sorted = examples.Select(e => new HoldoutExample(e.Id.Trim(), Fingerprint.CanonicalLabel(e.Label)))
+            .OrderBy(e => e.Id, StringComparer.Ordinal).ToList();
+        if (existing.Fingerprint != Fingerprint.Compute(sorted) || existing.Metric != metric)
+        {
+            throw AccountantException.BadInput($"the ledger already has a holdout named '{name}' with other examples or another metric; use a new ledger or another holdout name.");
+        }
+
+        return existing;
+    }
+
     /// <summary>The registered holdout of that name, or a clear error.</summary>
     public Holdout Holdout(string name) =>
         Store.FindHoldout(name) ?? throw AccountantException.BadArguments(
@@ -163,7 +187,7 @@ public sealed class Bookkeeper : IDisposable
         {
             examples ??= Store.Examples(holdout);
             var losses = Losses.Compute(holdout, examples, predictions);
-            return new NewLook(configuration, losses.Score, losses.Encoding, losses.Bytes, input.Search, input.Stage, input.Adaptive);
+            return new NewLook(configuration, losses.Score, losses.Encoding, losses.Bytes, input.Search, input.Stage, input.Adaptive, input.Seconds);
         }
 
         if (input.Score is not { } score)
@@ -172,7 +196,7 @@ public sealed class Bookkeeper : IDisposable
         }
 
         Losses.CheckScore(holdout, score);
-        return new NewLook(configuration, score, LossEncoding.None, null, input.Search, input.Stage, input.Adaptive);
+        return new NewLook(configuration, score, LossEncoding.None, null, input.Search, input.Stage, input.Adaptive, input.Seconds);
     }
 
     /// <summary>Marks a look as a mistake. It cannot be selected any more, and it still counts.</summary>

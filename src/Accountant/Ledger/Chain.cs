@@ -47,7 +47,7 @@ public static class Chain
     });
 
     public static byte[] LookEntry(long sequence, string holdoutFingerprint, int number, string configuration, string configurationDigest,
-        double score, bool adaptive, LossEncoding encoding, byte[]? losses, string? search, string? stage, string recordedAt) => Write(w =>
+        double score, bool adaptive, LossEncoding encoding, byte[]? losses, string? search, string? stage, double? seconds, string recordedAt) => Write(w =>
     {
         w.WriteString("kind", "look");
         w.WriteNumber("seq", sequence);
@@ -61,6 +61,7 @@ public static class Chain
         w.WriteString("losses", BlobDigest(losses));
         w.WriteString("search", search);
         w.WriteString("stage", stage);
+        w.WriteString("seconds", seconds is { } t ? Number(t) : null);
         w.WriteString("recordedAt", recordedAt);
     });
 

@@ -34,7 +34,8 @@ public sealed record NewLook(
     byte[]? Losses = null,
     string? Search = null,
     string? Stage = null,
-    bool Adaptive = false);
+    bool Adaptive = false,
+    double? Seconds = null);
 
 /// <summary>A look as stored. <see cref="Number"/> counts 1, 2, 3, … per holdout in the order recorded.</summary>
 public sealed record Look(
@@ -47,7 +48,8 @@ public sealed record Look(
     string? Search,
     string? Stage,
     bool Adaptive,
-    DateTimeOffset RecordedAt)
+    DateTimeOffset RecordedAt,
+    double? Seconds = null)
 {
     public bool HasLosses => LossEncoding != LossEncoding.None;
 }

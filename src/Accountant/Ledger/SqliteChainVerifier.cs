@@ -25,7 +25,7 @@ internal sealed class SqliteChainVerifier(SqliteConnection connection)
 
         using var entries = Command("SELECT seq, kind, prev_hash, hash FROM entries ORDER BY seq;");
         using var holdout = Command("SELECT id, name, size, metric, loss_low, loss_high, fingerprint, ids, labels, created_at FROM holdouts WHERE seq = $seq;");
-        using var look = Command("SELECT holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, recorded_at FROM looks WHERE seq = $seq;");
+        using var look = Command("SELECT holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at FROM looks WHERE seq = $seq;");
         using var @void = Command("SELECT holdout_id, look_number, reason, recorded_at FROM voids WHERE seq = $seq;");
         foreach (var command in new[] { holdout, look, @void })
         {
@@ -192,7 +192,7 @@ internal sealed class SqliteChainVerifier(SqliteConnection connection)
         }
 
         return (Chain.LookEntry(sequence, holdout.Fingerprint, number, configuration, digest, score, r.GetInt32(5) != 0, encoding, losses,
-            r.IsDBNull(8) ? null : r.GetString(8), r.IsDBNull(9) ? null : r.GetString(9), r.GetString(10)), null);
+            r.IsDBNull(8) ? null : r.GetString(8), r.IsDBNull(9) ? null : r.GetString(9), r.IsDBNull(10) ? null : r.GetDouble(10), r.GetString(11)), null);
     }
 
     private static (byte[], string?) Void(SqliteCommand command, long sequence, Dictionary<long, HoldoutState> holdouts)

@@ -197,6 +197,7 @@ public sealed class SqliteLedgerStore : ILedgerStore
                 losses               BLOB,
                 search               TEXT,
                 stage                TEXT,
+                seconds              REAL,
                 recorded_at          TEXT NOT NULL,
                 UNIQUE (holdout_id, number)
             );
@@ -310,10 +311,10 @@ public sealed class SqliteLedgerStore : ILedgerStore
         var recorded = Chain.Timestamp(_clock.GetUtcNow());
         var written = new List<Look>(looks.Count);
         using var insert = Command("""
-            INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, recorded_at)
-            VALUES ($seq, $holdout, $number, $configuration, $digest, $score, $adaptive, $encoding, $losses, $search, $stage, $recorded);
+            INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at)
+            VALUES ($seq, $holdout, $number, $configuration, $digest, $score, $adaptive, $encoding, $losses, $search, $stage, $seconds, $recorded);
             """);
-        var parameters = new[] { "$seq", "$holdout", "$number", "$configuration", "$digest", "$score", "$adaptive", "$encoding", "$losses", "$search", "$stage", "$recorded" }
+        var parameters = new[] { "$seq", "$holdout", "$number", "$configuration", "$digest", "$score", "$adaptive", "$encoding", "$losses", "$search", "$stage", "$seconds", "$recorded" }
             .Select(name => insert.Parameters.Add(name, SqliteType.Text)).ToArray();
         insert.Prepare();
         using var entry = EntryInsertCommand();
@@ -322,7 +323,7 @@ public sealed class SqliteLedgerStore : ILedgerStore
             number++;
             var digest = ConfigurationJson.Digest(look.Configuration);
             var canonical = Chain.LookEntry(sequence, holdout.Fingerprint, number, look.Configuration, digest, look.Score, look.Adaptive,
-                look.LossEncoding, look.Losses, look.Search, look.Stage, recorded);
+                look.LossEncoding, look.Losses, look.Search, look.Stage, look.Seconds, recorded);
             var hash = Chain.Link(previous, canonical);
             entry.Parameters["$seq"].Value = sequence;
             entry.Parameters["$kind"].Value = "look";
@@ -343,10 +344,12 @@ public sealed class SqliteLedgerStore : ILedgerStore
             parameters[8].Value = (object?)look.Losses ?? DBNull.Value;
             parameters[9].Value = (object?)look.Search ?? DBNull.Value;
             parameters[10].Value = (object?)look.Stage ?? DBNull.Value;
-            parameters[11].Value = recorded;
+            parameters[11].SqliteType = SqliteType.Real;
+            parameters[11].Value = (object?)look.Seconds ?? DBNull.Value;
+            parameters[12].Value = recorded;
             insert.ExecuteNonQuery();
 
-            written.Add(new Look(sequence, number, look.Configuration, digest, look.Score, look.LossEncoding, look.Search, look.Stage, look.Adaptive, Chain.ParseTimestamp(recorded)));
+            written.Add(new Look(sequence, number, look.Configuration, digest, look.Score, look.LossEncoding, look.Search, look.Stage, look.Adaptive, Chain.ParseTimestamp(recorded), look.Seconds));
             previous = hash;
             sequence++;
         }
@@ -385,7 +388,7 @@ public sealed class SqliteLedgerStore : ILedgerStore
     public IReadOnlyList<Look> Looks(Holdout holdout) => Guarded(() =>
     {
         using var command = Command("""
-            SELECT seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at
+            SELECT seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at, seconds
             FROM looks WHERE holdout_id = $id ORDER BY number;
             """);
         command.Parameters.AddWithValue("$id", holdout.Key);
@@ -403,7 +406,8 @@ public sealed class SqliteLedgerStore : ILedgerStore
                 reader.IsDBNull(6) ? null : reader.GetString(6),
                 reader.IsDBNull(7) ? null : reader.GetString(7),
                 reader.GetInt32(8) != 0,
-                Chain.ParseTimestamp(reader.GetString(9))));
+                Chain.ParseTimestamp(reader.GetString(9)),
+                reader.IsDBNull(10) ? null : reader.GetDouble(10)));
         }
 
         return looks;

@@ -1,0 +1,8 @@
+namespace Accountant.Search;
+
+/// <summary>Where a search is: looks done of the total, the best score so far, time spent and an estimate of time left.</summary>
+public sealed record SearchProgress(int Done, int Total, double? Best, TimeSpan Elapsed, string Current)
+{
+    /// <summary>Time left at the mean pace so far; null before the first look finishes.</summary>
+    public TimeSpan? Remaining => Done == 0 ? null : TimeSpan.FromTicks(Elapsed.Ticks / Done * (Total - Done));
+}

@@ -1,0 +1,70 @@
+using System.Globalization;
+using System.Text;
+
+namespace Accountant.Search.Trainers;
+
+/// <summary>How a hyperparameter's values are drawn.</summary>
+public enum ParameterScale
+{
+    /// <summary>Uniform on [Low, High].</summary>
+    Uniform,
+    /// <summary>log-uniform on [Low, High]: for rates and penalties spanning decades.</summary>
+    LogUniform,
+    /// <summary>A whole number, uniform on [Low, High].</summary>
+    Integer,
+    /// <summary>A whole number, log-uniform on [Low, High]: for counts spanning decades.</summary>
+    LogInteger,
+}
+
+/// <summary>One hyperparameter's range.</summary>
+public sealed record ParameterRange(string Name, double Low, double High, ParameterScale Scale)
+{
+    /// <summary>Draws a value. Continuous values keep four significant digits, so the configuration recorded is the one trained.</summary>
+    public double Sample(Random random)
+    {
+        var u = random.NextDouble();
+        return Scale switch
+        {
+            ParameterScale.Uniform => RoundSignificant(Low + u * (High - Low)),
+            ParameterScale.LogUniform => RoundSignificant(Math.Exp(Math.Log(Low) + u * (Math.Log(High) - Math.Log(Low)))),
+            ParameterScale.Integer => Math.Floor(Low + u * (High - Low + 1)),
+            ParameterScale.LogInteger => Math.Min(High, Math.Floor(Math.Exp(Math.Log(Low) + u * (Math.Log(High + 1) - Math.Log(Low))))),
+            _ => throw new ArgumentOutOfRangeException(nameof(Scale)),
+        };
+    }
+
+    public bool IsWhole => Scale is ParameterScale.Integer or ParameterScale.LogInteger;
+
+    private static double RoundSignificant(double value) =>
+        value == 0 ? 0 : Math.Round(value, Math.Max(0, 3 - (int)Math.Floor(Math.Log10(Math.Abs(value)))));
+}
+
+/// <summary>A trainer and the ranges of its hyperparameters.</summary>
+public sealed record TrainerSpace(string Trainer, IReadOnlyList<ParameterRange> Parameters)
+{
+    public TrainerConfiguration Sample(Random random) =>
+        new(Trainer, Parameters.ToDictionary(p => p.Name, p => p.Sample(random)));
+}
+
+/// <summary>A trainer with one value per hyperparameter: what one look scores.</summary>
+public sealed record TrainerConfiguration(string Trainer, IReadOnlyDictionary<string, double> Values)
+{
+    public int Int(string name) => checked((int)Values[name]);
+
+    public double Double(string name) => Values[name];
+
+    /// <summary>The configuration as a JSON object: the trainer first, then the hyperparameters.</summary>
+    public string ToJson()
+    {
+        var builder = new StringBuilder();
+        builder.Append("{\"trainer\":\"").Append(Trainer).Append('"');
+        foreach (var (name, value) in Values.OrderBy(v => v.Key, StringComparer.Ordinal))
+        {
+            builder.Append(",\"").Append(name).Append("\":").Append(value.ToString("R", CultureInfo.InvariantCulture));
+        }
+
+        return builder.Append('}').ToString();
+    }
+
+    public override string ToString() => ToJson();
+}
