@@ -126,7 +126,9 @@ public static class StatementBuilder
         if (budget.Overused)
         {
             var margin = bounds.Count > 0 ? $" the margin is now {F(bounds[0].Margin)}," : "";
-            warnings.Add(new("holdout-overused", $"{looks.Count} looks exceed the budget of {budget.MaxLooks} at tolerance {F(options.Tolerance)} and confidence {F(options.Confidence)}:{margin} so this holdout can no longer tell configurations apart to that tolerance; collect fresh validation data for further comparisons."));
+            warnings.Add(budget.MaxLooks == 0
+                ? new("holdout-overused", $"even a single look's margin exceeds the tolerance {F(options.Tolerance)} at confidence {F(options.Confidence)} on {holdout.Size} examples:{margin} so this holdout is too small to tell configurations apart to that tolerance; 'accountant plan' gives the size needed.")
+                : new("holdout-overused", $"{looks.Count} looks exceed the budget of {budget.MaxLooks} at tolerance {F(options.Tolerance)} and confidence {F(options.Confidence)}:{margin} so this holdout can no longer tell configurations apart to that tolerance; collect fresh validation data for further comparisons."));
         }
 
         if (looks.Count == 1)

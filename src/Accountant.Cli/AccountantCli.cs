@@ -1,0 +1,55 @@
+using System.CommandLine;
+using Accountant.Cli.Commands;
+
+namespace Accountant.Cli;
+
+/// <summary>The <c>accountant</c> command line: builds the verbs and runs one, in-process and testable.</summary>
+public static class AccountantCli
+{
+    public static RootCommand Build(CliEnvironment env)
+    {
+        var root = new RootCommand("Accountant counts every look at a validation set and reports the best score with a bound corrected for the comparisons made.")
+        {
+            new InitCommand(env),
+            new HoldoutCommand(env),
+            new RecordCommand(env),
+            new ImportCommand(env),
+            new StatementCommand(env),
+            new BudgetCommand(env),
+            new PlanCommand(env),
+            new VoidCommand(env),
+            new VerifyCommand(env),
+            new DemoCommand(env),
+        };
+        root.Options.Add(Common.LedgerOption);
+        root.SetAction(_ =>
+        {
+            env.Output.WriteLine("accountant: count every look at a validation set; report the best score with a corrected bound.");
+            env.Output.WriteLine();
+            env.Output.WriteLine("Start here:");
+            env.Output.WriteLine("  accountant demo                                   watch a real search being accounted for");
+            env.Output.WriteLine("  accountant init && accountant holdout add validation --labels labels.csv");
+            env.Output.WriteLine("  accountant record validation --configuration '{\"leaves\":31}' --predictions preds.csv");
+            env.Output.WriteLine("  accountant statement validation                   the corrected bound, the budget, the warnings");
+            env.Output.WriteLine();
+            env.Output.WriteLine("Every verb: accountant VERB --help");
+            return ExitCodes.Success;
+        });
+        return root;
+    }
+
+    /// <summary>Parses and runs; a malformed command line is one line on stderr and <see cref="ExitCodes.BadArguments"/>.</summary>
+    public static int Run(string[] args, CliEnvironment env)
+    {
+        var root = Build(env);
+        var result = root.Parse(args);
+        if (result.Errors.Count > 0)
+        {
+            var verb = result.CommandResult.Command == root ? "" : " " + result.CommandResult.Command.Name;
+            env.Error.WriteLine($"accountant: {result.Errors[0].Message.TrimEnd('.')}; see 'accountant{verb} --help'.");
+            return ExitCodes.BadArguments;
+        }
+
+        return result.Invoke(new InvocationConfiguration { Output = env.Output, Error = env.Error, ProcessTerminationTimeout = null });
+    }
+}

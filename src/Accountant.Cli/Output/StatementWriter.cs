@@ -1,0 +1,205 @@
+using System.Text;
+using System.Text.Encodings.Web;
+using System.Text.Json;
+using Accountant.Bounds;
+using Accountant.Statements;
+
+namespace Accountant.Cli.Output;
+
+/// <summary>Renders a statement as a table for people, JSON for machines, or Markdown for pull requests and papers.</summary>
+public static class StatementWriter
+{
+    /// <summary>The version of the JSON output's shape; bumped when a field other tools rely on changes.</summary>
+    public const int JsonSchemaVersion = 1;
+
+    private static readonly JsonWriterOptions JsonOptions = new() { Indented = true, Encoder = JavaScriptEncoder.UnsafeRelaxedJsonEscaping };
+
+    public static string Render(Statement statement, string format) => format switch
+    {
+        "json" => Json(statement),
+        "markdown" => Markdown(statement),
+        _ => Table(statement),
+    };
+
+    private static string Kind(BoundLine line) => line.Guarantee ? "guarantee" : "estimate";
+
+    private static string Side(Statement s) => s.Options.Sided == Sidedness.OneSided ? "one-sided" : "two-sided";
+
+    private static string BoundWord(Statement s) => s.Holdout.Metric.HigherIsBetter() ? "lower bound" : "upper bound";
+
+    public static string Table(Statement s)
+    {
+        var b = new StringBuilder();
+        var h = s.Holdout;
+        b.AppendLine($"Holdout      {h.Name}: {Text.Count(h.Size)} examples, metric {h.Metric.Name()}");
+        b.AppendLine($"Looks        {Text.Count(s.Looks)} counted ({s.AdaptiveLooks} adaptive, {s.VoidedLooks} voided, {s.ScoreOnlyLooks} score-only)");
+        if (s.Best is { } best)
+        {
+            b.AppendLine($"Best look    #{best.Number}: {h.Metric.Name()} {Text.N(best.Score)}  {Text.Short(best.Configuration, 90)}");
+        }
+
+        b.AppendLine($"Confidence   {Text.Percent(s.Options.Confidence)} {Side(s)}, corrected for {Text.Count(s.Looks)} look(s)");
+        if (s.Bounds.Count > 0)
+        {
+            b.AppendLine();
+            b.AppendLine($"  {"method",-18} {BoundWord(s),12} {"margin",8}  kind");
+            foreach (var line in s.Bounds)
+            {
+                var value = s.Options.Sided == Sidedness.TwoSided ? $"[{Text.N(line.Lower)}, {Text.N(line.Upper)}]" : Text.N(line.Bound);
+                b.AppendLine($"  {line.Method,-18} {value,12} {Text.N(line.Margin),8}  {Kind(line)}");
+            }
+
+            b.AppendLine();
+            var primary = s.Primary!;
+            var direction = h.Metric.HigherIsBetter() ? "at least" : "at most";
+            b.AppendLine($"  With {Text.Percent(s.Options.Confidence)} confidence the selected configuration's true {h.Metric.Name()} is {direction} {Text.N(primary.Bound)} ({primary.Method}).");
+        }
+
+        b.AppendLine();
+        b.AppendLine(s.Budget.MaxLooks == 0
+            ? $"Budget       none: even one look's margin exceeds tolerance {Text.N(s.Budget.Tolerance, 3)} on {Text.Count(h.Size)} examples ({s.Budget.Method}); 'accountant plan' gives the size needed"
+            : $"Budget       {Text.Count(s.Budget.LooksLeft)} look(s) left of {Text.Count(s.Budget.MaxLooks)} at tolerance {Text.N(s.Budget.Tolerance, 3)} ({s.Budget.Method})");
+        b.AppendLine($"Chain head   {s.ChainHead ?? "(empty ledger)"}");
+        if (s.Warnings.Count > 0)
+        {
+            b.AppendLine();
+            b.AppendLine("Warnings");
+            foreach (var w in s.Warnings) b.AppendLine($"  {w.Code}: {w.Message}");
+        }
+
+        b.AppendLine();
+        b.AppendLine("Cautions");
+        foreach (var c in s.Cautions) b.AppendLine($"  - {c}");
+        return b.ToString();
+    }
+
+    public static string Markdown(Statement s)
+    {
+        var b = new StringBuilder();
+        var h = s.Holdout;
+        b.AppendLine($"### Holdout `{h.Name}`");
+        b.AppendLine();
+        b.AppendLine($"{Text.Count(h.Size)} examples, metric **{h.Metric.Name()}**, **{Text.Count(s.Looks)} looks** counted ({s.AdaptiveLooks} adaptive, {s.VoidedLooks} voided).");
+        if (s.Best is { } best)
+        {
+            b.AppendLine($"Best look #{best.Number}: observed {h.Metric.Name()} **{Text.N(best.Score)}**, configuration `{best.Configuration.Replace("`", "'", StringComparison.Ordinal)}`.");
+        }
+
+        b.AppendLine();
+        if (s.Bounds.Count > 0)
+        {
+            b.AppendLine($"| method | {BoundWord(s)} ({Text.Percent(s.Options.Confidence)}, {Side(s)}) | margin | kind |");
+            b.AppendLine("|---|---:|---:|---|");
+            foreach (var line in s.Bounds)
+            {
+                b.AppendLine($"| {line.Method} | {Text.N(line.Bound)} | {Text.N(line.Margin)} | {Kind(line)} |");
+            }
+
+            b.AppendLine();
+        }
+
+        b.AppendLine($"Budget: {Text.Count(s.Budget.LooksLeft)} of {Text.Count(s.Budget.MaxLooks)} looks left at tolerance {Text.N(s.Budget.Tolerance, 3)} ({s.Budget.Method}). Chain head `{s.ChainHead ?? "empty"}`.");
+        if (s.Warnings.Count > 0)
+        {
+            b.AppendLine();
+            foreach (var w in s.Warnings) b.AppendLine($"- **{w.Code}**: {w.Message}");
+        }
+
+        b.AppendLine();
+        b.AppendLine("<details><summary>Cautions</summary>");
+        b.AppendLine();
+        foreach (var c in s.Cautions) b.AppendLine($"- {c}");
+        b.AppendLine();
+        b.AppendLine("</details>");
+        return b.ToString();
+    }
+
+    public static string Json(Statement s) => JsonText(w => WriteJson(w, s));
+
+    public static string JsonText(Action<Utf8JsonWriter> body)
+    {
+        using var stream = new MemoryStream();
+        using (var writer = new Utf8JsonWriter(stream, JsonOptions))
+        {
+            body(writer);
+        }
+
+        return Encoding.UTF8.GetString(stream.ToArray()) + Environment.NewLine;
+    }
+
+    public static void WriteJson(Utf8JsonWriter w, Statement s)
+    {
+        var h = s.Holdout;
+        w.WriteStartObject();
+        w.WriteNumber("schemaVersion", JsonSchemaVersion);
+        w.WriteStartObject("holdout");
+        w.WriteString("name", h.Name);
+        w.WriteNumber("size", h.Size);
+        w.WriteString("metric", h.Metric.Name());
+        w.WriteStartArray("lossRange");
+        w.WriteNumberValue(h.Metric.IsZeroOne() ? 0 : h.LossRange.Low);
+        w.WriteNumberValue(h.Metric.IsZeroOne() ? 1 : h.LossRange.High);
+        w.WriteEndArray();
+        w.WriteString("fingerprint", h.Fingerprint);
+        w.WriteEndObject();
+        w.WriteNumber("looks", s.Looks);
+        w.WriteNumber("adaptiveLooks", s.AdaptiveLooks);
+        w.WriteNumber("voidedLooks", s.VoidedLooks);
+        w.WriteNumber("scoreOnlyLooks", s.ScoreOnlyLooks);
+        w.WriteNumber("confidence", s.Options.Confidence);
+        w.WriteString("sided", Side(s));
+        if (s.Best is { } best)
+        {
+            w.WriteStartObject("best");
+            w.WriteNumber("look", best.Number);
+            w.WriteNumber("observed", best.Score);
+            w.WritePropertyName("configuration");
+            w.WriteRawValue(best.Configuration);
+            w.WriteString("search", best.Search);
+            w.WriteString("stage", best.Stage);
+            w.WriteEndObject();
+        }
+        else
+        {
+            w.WriteNull("best");
+        }
+
+        w.WriteStartArray("bounds");
+        foreach (var line in s.Bounds)
+        {
+            w.WriteStartObject();
+            w.WriteString("method", line.Method);
+            w.WriteNumber("bound", line.Bound);
+            w.WriteNumber("margin", line.Margin);
+            w.WriteBoolean("guarantee", line.Guarantee);
+            w.WriteNumber("lower", line.Lower);
+            w.WriteNumber("upper", line.Upper);
+            w.WriteString("reference", line.Reference);
+            w.WriteEndObject();
+        }
+
+        w.WriteEndArray();
+        w.WriteStartObject("budget");
+        w.WriteNumber("tolerance", s.Budget.Tolerance);
+        w.WriteString("method", s.Budget.Method);
+        w.WriteNumber("maxLooks", s.Budget.MaxLooks);
+        w.WriteNumber("looksUsed", s.Budget.LooksUsed);
+        w.WriteNumber("looksLeft", s.Budget.LooksLeft);
+        w.WriteEndObject();
+        w.WriteString("chainHead", s.ChainHead);
+        w.WriteStartArray("warnings");
+        foreach (var warning in s.Warnings)
+        {
+            w.WriteStartObject();
+            w.WriteString("code", warning.Code);
+            w.WriteString("message", warning.Message);
+            w.WriteEndObject();
+        }
+
+        w.WriteEndArray();
+        w.WriteStartArray("cautions");
+        foreach (var caution in s.Cautions) w.WriteStringValue(caution);
+        w.WriteEndArray();
+        w.WriteEndObject();
+    }
+}
