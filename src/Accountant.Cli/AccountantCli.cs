@@ -1,4 +1,5 @@
 using System.CommandLine;
+using System.Globalization;
 using Accountant.Cli.Commands;
 
 namespace Accountant.Cli;
@@ -41,12 +42,31 @@ public static class AccountantCli
     /// <summary>Parses and runs; a malformed command line is one line on stderr and <see cref="ExitCodes.BadArguments"/>.</summary>
     public static int Run(string[] args, CliEnvironment env)
     {
+        // Numbers are read and written culture-invariant, whatever the machine's locale ("0.05" is never 5).
+        var culture = CultureInfo.CurrentCulture;
+        var uiCulture = CultureInfo.CurrentUICulture;
+        CultureInfo.CurrentCulture = CultureInfo.InvariantCulture;
+        try
+        {
+            return RunInvariant(args, env);
+        }
+        finally
+        {
+            CultureInfo.CurrentCulture = culture;
+            CultureInfo.CurrentUICulture = uiCulture;
+        }
+    }
+
+    private static int RunInvariant(string[] args, CliEnvironment env)
+    {
         var root = Build(env);
-        var result = root.Parse(args);
+        // '@file.json' is a configuration file of ours, not a response file of the parser's.
+        var result = root.Parse(args, new ParserConfiguration { ResponseFileTokenReplacer = null });
         if (result.Errors.Count > 0)
         {
             var verb = result.CommandResult.Command == root ? "" : " " + result.CommandResult.Command.Name;
-            env.Error.WriteLine($"accountant: {result.Errors[0].Message.TrimEnd('.')}; see 'accountant{verb} --help'.");
+            var message = string.Join(' ', result.Errors[0].Message.Split((char[])['\n', '\r', '\t'], StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries));
+            env.Error.WriteLine($"accountant: {message.TrimEnd('.')}; see 'accountant{verb} --help'.");
             return ExitCodes.BadArguments;
         }
 

@@ -2,6 +2,7 @@ using System.Globalization;
 using Accountant.Cli;
 
 CultureInfo.DefaultThreadCurrentCulture = CultureInfo.InvariantCulture;
+CultureInfo.CurrentCulture = CultureInfo.InvariantCulture;
 using var cancel = new CancellationTokenSource();
 Console.CancelKeyPress += (_, e) =>
 {
