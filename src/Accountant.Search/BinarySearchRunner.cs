@@ -48,13 +48,13 @@ public sealed class BinarySearchRunner(MLContext ml, IEstimator<ITransformer> fe
         var validationFeatures = featurizer.Transform(validation);
         for (var i = 0; i < configurations.Count; i++)
         {
+            var configuration = configurations[i];
+            progress?.Report(new SearchProgress(i, configurations.Count, best?.Look.Score, clock.Elapsed, configuration.Trainer));
             if (cancel.IsCancellationRequested)
             {
                 return new SearchOutcome(looks, best, bestModel, Cancelled: true);
             }
 
-            var configuration = configurations[i];
-            progress?.Report(new SearchProgress(i, configurations.Count, best?.Look.Score, clock.Elapsed, configuration.Trainer));
             var started = clock.Elapsed;
             var model = Fit(configuration, trainFeatures);
             var predicted = ml.Data.CreateEnumerable<PredictedRow>(model.Transform(validationFeatures), reuseRowObject: false)

@@ -289,3 +289,31 @@ public sealed class CommandTests : IDisposable
         }
     }
 }
+
+public sealed class DemoCommandTests : IDisposable
+{
+    private readonly CliHarness _cli = new();
+
+    public void Dispose() => _cli.Dispose();
+
+    [Fact]
+    public void The_demo_runs_end_to_end_and_keeps_its_ledger_when_asked()
+    {
+        var result = _cli.Run("demo", "--looks", "5", "--training-rows", "400", "--validation-rows", "300", "--fresh-rows", "5000", "--format", "json");
+        Assert.Equal(ExitCodes.Success, result.Exit);
+        var root = System.Text.Json.JsonDocument.Parse(result.Out).RootElement;
+        Assert.Equal(5, root.GetProperty("statement").GetProperty("looks").GetInt32());
+        Assert.Equal(300, root.GetProperty("statement").GetProperty("holdout").GetProperty("size").GetInt32());
+        Assert.Equal(5000, root.GetProperty("truth").GetProperty("freshRows").GetInt32());
+        Assert.Contains("5/5 looks", result.Err); // progress on stderr
+        var verify = _cli.Run("verify");
+        Assert.Equal(ExitCodes.Success, verify.Exit);
+        Assert.Equal(5, System.Text.Json.JsonDocument.Parse(_cli.Run("statement", "bakery-validation", "--format", "json").Out).RootElement.GetProperty("looks").GetInt32());
+
+        var table = _cli.Run("demo", "--looks", "2", "--training-rows", "200", "--validation-rows", "300", "--fresh-rows", "2000", "--quiet");
+        Assert.Equal(ExitCodes.Success, table.Exit);
+        Assert.Contains("What only a simulation can show", table.Out);
+        Assert.Contains("7 counted", table.Out); // the same holdout, now with 5 + 2 looks
+        Assert.Equal("", table.Err);
+    }
+}

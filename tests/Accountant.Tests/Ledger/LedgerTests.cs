@@ -225,7 +225,7 @@ public sealed class LedgerTests : IDisposable
         { "delete a look with its entry", "DELETE FROM looks WHERE number = 2; DELETE FROM entries WHERE seq = 3;", 3 },
         { "delete a void", "DELETE FROM voids; DELETE FROM entries WHERE kind = 'void';", 5 },
         { "reorder two looks", "UPDATE looks SET number = 100 WHERE number = 2; UPDATE looks SET number = 2 WHERE number = 3; UPDATE looks SET number = 3 WHERE number = 100;", 3 },
-        { "insert a forged look", """INSERT INTO looks VALUES (99, 1, 5, '{}', 'x', 0.0, 0, 0, NULL, NULL, NULL, '2026-01-01T00:00:00.0000000Z');""", 99 },
+        { "insert a forged look", """INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, recorded_at) VALUES (99, 1, 5, '{}', 'x', 0.0, 0, 0, '2026-01-01T00:00:00.0000000Z');""", 99 },
         { "change a void's reason", "UPDATE voids SET reason = 'never mind';", 5 },
     };
 
