@@ -6,8 +6,8 @@ CultureInfo.CurrentCulture = CultureInfo.InvariantCulture;
 using var cancel = new CancellationTokenSource();
 Console.CancelKeyPress += (_, e) =>
 {
-    // The first Ctrl-C asks the running command to stop after the look in progress; a second one ends the process.
-    if (!cancel.IsCancellationRequested)
+    // While a search runs, the first Ctrl-C asks it to stop after the look in progress; a second one ends the process.
+    if (CtrlC.Observed && !cancel.IsCancellationRequested)
     {
         e.Cancel = true;
         cancel.Cancel();

@@ -23,10 +23,8 @@ internal sealed class BudgetCommand : Command
             var budget = statement.Budget;
             if (r.GetValue(format) == "json")
             {
-                env.Output.Write(StatementWriter.JsonText(w =>
+                env.Output.Write(StatementWriter.JsonObject(w =>
                 {
-                    w.WriteStartObject();
-                    w.WriteNumber("schemaVersion", StatementWriter.JsonSchemaVersion);
                     w.WriteString("holdout", statement.Holdout.Name);
                     w.WriteNumber("tolerance", budget.Tolerance);
                     w.WriteNumber("confidence", statement.Options.Confidence);
@@ -35,7 +33,6 @@ internal sealed class BudgetCommand : Command
                     w.WriteNumber("maxLooks", budget.MaxLooks);
                     w.WriteNumber("looksLeft", budget.LooksLeft);
                     w.WriteBoolean("overused", budget.Overused);
-                    w.WriteEndObject();
                 }));
             }
             else

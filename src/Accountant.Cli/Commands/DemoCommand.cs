@@ -1,5 +1,4 @@
 using System.CommandLine;
-using System.Globalization;
 using Accountant.Cli.Output;
 using Accountant.Search.Demo;
 using Accountant.Search.Trainers;
@@ -51,7 +50,17 @@ internal sealed class DemoCommand : Command
             }
 
             var progress = r.GetValue(quiet) ? null : new ProgressBar(env.Error, env.ErrorIsTerminal, "error");
-            var outcome = DemoRunner.Run(book, options, progress, env.Cancel);
+            DemoOutcome outcome;
+            using (CtrlC.Observe())
+            {
+                outcome = DemoRunner.Run(book, options, progress, env.Cancel);
+            }
+
+            if (outcome.Search.Cancelled)
+            {
+                env.Error.WriteLine($"accountant: interrupted after {outcome.Search.Looks.Count} look(s); every finished look was kept and the statement below covers them.");
+            }
+
             env.Output.Write(Render(outcome, text, path));
             return outcome.Search.Cancelled ? ExitCodes.Interrupted : ExitCodes.Success;
         }));
@@ -62,10 +71,8 @@ internal sealed class DemoCommand : Command
         var s = outcome.Statement;
         if (format == "json")
         {
-            return StatementWriter.JsonText(w =>
+            return StatementWriter.JsonObject(w =>
             {
-                w.WriteStartObject();
-                w.WriteNumber("schemaVersion", StatementWriter.JsonSchemaVersion);
                 w.WriteString("ledger", path);
                 w.WriteBoolean("cancelled", outcome.Search.Cancelled);
                 w.WritePropertyName("statement");
@@ -76,7 +83,6 @@ internal sealed class DemoCommand : Command
                 WriteNumber(w, "selectedTrueErrorStdErr", outcome.SelectedTrueErrorStdErr);
                 WriteNumber(w, "bayesError", outcome.BayesError);
                 if (s.Best is { } best) WriteNumber(w, "optimism", outcome.SelectedTrueError - best.Score);
-                w.WriteEndObject();
                 w.WriteEndObject();
             });
         }
@@ -111,5 +117,4 @@ internal sealed class DemoCommand : Command
         if (double.IsFinite(value)) w.WriteNumber(name, value); else w.WriteNull(name);
     }
 
-    internal static string Invariant(double value) => value.ToString(CultureInfo.InvariantCulture);
 }

@@ -66,10 +66,8 @@ internal sealed class HoldoutCommand : Command
             var holdouts = book.Store.Holdouts().Select(h => (Holdout: h, Looks: book.Store.Looks(h).Count)).ToList();
             if (r.GetValue(format) == "json")
             {
-                env.Output.Write(StatementWriter.JsonText(w =>
+                env.Output.Write(StatementWriter.JsonObject(w =>
                 {
-                    w.WriteStartObject();
-                    w.WriteNumber("schemaVersion", StatementWriter.JsonSchemaVersion);
                     w.WriteStartArray("holdouts");
                     foreach (var (h, looks) in holdouts)
                     {
@@ -83,7 +81,6 @@ internal sealed class HoldoutCommand : Command
                     }
 
                     w.WriteEndArray();
-                    w.WriteEndObject();
                 }));
                 return ExitCodes.Success;
             }
@@ -118,10 +115,8 @@ internal sealed class HoldoutCommand : Command
             var voided = book.Store.Voids(h).Select(v => v.LookNumber).ToHashSet();
             if (r.GetValue(format) == "json")
             {
-                env.Output.Write(StatementWriter.JsonText(w =>
+                env.Output.Write(StatementWriter.JsonObject(w =>
                 {
-                    w.WriteStartObject();
-                    w.WriteNumber("schemaVersion", StatementWriter.JsonSchemaVersion);
                     w.WriteString("name", h.Name);
                     w.WriteNumber("size", h.Size);
                     w.WriteString("metric", h.Metric.Name());
@@ -143,7 +138,6 @@ internal sealed class HoldoutCommand : Command
                     }
 
                     w.WriteEndArray();
-                    w.WriteEndObject();
                 }));
                 return ExitCodes.Success;
             }

@@ -26,10 +26,8 @@ internal sealed class PlanCommand : Command
             long? exact = r.GetValue(error) is { } p ? BinomialUnion.SampleSize(m, eps, delta, p, sided) : null;
             if (r.GetValue(format) == "json")
             {
-                env.Output.Write(StatementWriter.JsonText(w =>
+                env.Output.Write(StatementWriter.JsonObject(w =>
                 {
-                    w.WriteStartObject();
-                    w.WriteNumber("schemaVersion", StatementWriter.JsonSchemaVersion);
                     w.WriteNumber("looks", m);
                     w.WriteNumber("tolerance", eps);
                     w.WriteNumber("confidence", 1 - delta);
@@ -49,7 +47,6 @@ internal sealed class PlanCommand : Command
                     }
 
                     w.WriteEndArray();
-                    w.WriteEndObject();
                 }));
                 return ExitCodes.Success;
             }

@@ -55,15 +55,12 @@ internal sealed class RecordCommand : Command
             var look = book.RecordMany(holdout.Name, [input])[0];
             if (r.GetValue(format) == "json")
             {
-                env.Output.Write(StatementWriter.JsonText(w =>
+                env.Output.Write(StatementWriter.JsonObject(w =>
                 {
-                    w.WriteStartObject();
-                    w.WriteNumber("schemaVersion", StatementWriter.JsonSchemaVersion);
                     w.WriteString("holdout", holdout.Name);
                     w.WriteNumber("look", look.Number);
                     w.WriteNumber("observed", look.Score);
                     w.WriteBoolean("perExampleLosses", look.HasLosses);
-                    w.WriteEndObject();
                 }));
             }
             else

@@ -18,16 +18,13 @@ internal sealed class VerifyCommand : Command
             var report = book.Verify(r.GetValue(head));
             if (r.GetValue(format) == "json")
             {
-                env.Output.Write(StatementWriter.JsonText(w =>
+                env.Output.Write(StatementWriter.JsonObject(w =>
                 {
-                    w.WriteStartObject();
-                    w.WriteNumber("schemaVersion", StatementWriter.JsonSchemaVersion);
                     w.WriteBoolean("valid", report.Valid);
                     w.WriteNumber("entries", report.Entries);
                     w.WriteString("chainHead", report.Head);
                     if (report.FirstBadEntry is { } bad) w.WriteNumber("firstBadEntry", bad); else w.WriteNull("firstBadEntry");
                     w.WriteString("problem", report.Problem);
-                    w.WriteEndObject();
                 }));
             }
             else if (report.Valid)

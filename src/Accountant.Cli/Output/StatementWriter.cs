@@ -127,6 +127,15 @@ public static class StatementWriter
         return Encoding.UTF8.GetString(stream.ToArray()) + Environment.NewLine;
     }
 
+    /// <summary>A JSON object that starts with <c>schemaVersion</c>, as every JSON output of the tool does.</summary>
+    public static string JsonObject(Action<Utf8JsonWriter> fields) => JsonText(w =>
+    {
+        w.WriteStartObject();
+        w.WriteNumber("schemaVersion", JsonSchemaVersion);
+        fields(w);
+        w.WriteEndObject();
+    });
+
     public static void WriteJson(Utf8JsonWriter w, Statement s)
     {
         var h = s.Holdout;
