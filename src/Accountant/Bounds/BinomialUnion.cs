@@ -23,6 +23,23 @@ public static class BinomialUnion
         return new Interval(BinomialTail.Lower(errors, n, perLook / 2.0), BinomialTail.Upper(errors, n, perLook / 2.0));
     }
 
+    /// <summary>
+    /// The interval for an effective number of looks given by its logarithm. When δ/M underflows a double
+    /// (ln M above about 700) the bound is the whole range: the accounting has made it vacuous.
+    /// </summary>
+    public static Interval BoundLog(long errors, long n, double logLooks, double delta, Sidedness sided = Sidedness.OneSided)
+    {
+        Require.Delta(delta);
+        var logPerSide = Math.Log(delta) - logLooks - (sided == Sidedness.TwoSided ? Math.Log(2.0) : 0.0);
+        if (logPerSide < -700)
+        {
+            return new Interval(0.0, 1.0);
+        }
+
+        var perSide = Math.Exp(logPerSide);
+        return new Interval(sided == Sidedness.TwoSided ? BinomialTail.Lower(errors, n, perSide) : 0.0, BinomialTail.Upper(errors, n, perSide));
+    }
+
     /// <summary>Upper limit minus the observed error k/n (one-sided), or the larger half-width (two-sided).</summary>
     public static double Margin(long errors, long n, long looks, double delta, Sidedness sided = Sidedness.OneSided)
     {

@@ -19,6 +19,21 @@ public static class HoeffdingUnion
         return width * Math.Sqrt(LogTerm(looks, delta, sided) / (2.0 * n));
     }
 
+    /// <summary>The margin for an effective number of looks given by its logarithm (it may be astronomically large).</summary>
+    public static double MarginLog(long n, double logLooks, double delta, double width = 1.0, Sidedness sided = Sidedness.OneSided)
+    {
+        Require.Size(n);
+        Require.Delta(delta);
+        return width * Math.Sqrt((logLooks - Math.Log(delta) + (sided == Sidedness.TwoSided ? Math.Log(2.0) : 0.0)) / (2.0 * n));
+    }
+
+    /// <summary>The interval for an effective number of looks given by its logarithm, clipped to the loss range.</summary>
+    public static Interval BoundLog(double observed, long n, double logLooks, double delta, LossRange range, Sidedness sided = Sidedness.OneSided)
+    {
+        var margin = MarginLog(n, logLooks, delta, range.Width, sided);
+        return new Interval(sided == Sidedness.TwoSided ? Math.Max(range.Low, observed - margin) : range.Low, Math.Min(range.High, observed + margin));
+    }
+
     /// <summary>The interval on the loss mean, clipped to the loss range.</summary>
     public static Interval Bound(double observed, long n, long looks, double delta, LossRange range, Sidedness sided = Sidedness.OneSided)
     {
