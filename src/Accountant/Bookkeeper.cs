@@ -1,4 +1,5 @@
 using Accountant.Bounds;
+using Accountant.Guards;
 using Accountant.Ledger;
 using Accountant.Statements;
 
@@ -27,6 +28,12 @@ public sealed record LookInput
 
     /// <summary>How long training took, in seconds, when known.</summary>
     public double? Seconds { get; init; }
+
+    /// <summary>The guard that releases the score to the search; null when the search is simply shown the score.</summary>
+    public GuardSpec? Guard { get; init; }
+
+    /// <summary>The configuration's score on its training data (Thresholdout compares against it).</summary>
+    public double? TrainScore { get; init; }
 }
 
 /// <summary>
@@ -48,6 +55,12 @@ public sealed class Bookkeeper : IDisposable
 
     public ILedgerStore Store { get; }
 
+    /// <summary>The randomness Thresholdout draws its noise from; seed it for reproducible releases.</summary>
+    public Random GuardRandom { get; set; } = new();
+
+    // Thresholdout's noisy threshold, kept between looks of one stream for as long as this object lives.
+    private readonly Dictionary<string, ThresholdoutNoise> _thresholds = new(StringComparer.Ordinal);
+
     /// <summary>Creates a new SQLite ledger file.</summary>
     public static Bookkeeper Create(string path, TimeProvider? clock = null) => new(SqliteLedgerStore.Create(path, clock));
 
@@ -65,11 +78,16 @@ public sealed class Bookkeeper : IDisposable
     public Holdout RegisterHoldout(string name, IEnumerable<HoldoutExample> examples, Metric metric = Metric.Error, LossRange? lossRange = null)
     {
         CheckName(name, "holdout name");
-        var range = metric.IsZeroOne() ? LossRange.Unit : lossRange ?? throw AccountantException.BadArguments(
+        var range = metric.IsZeroOne() || metric == Metric.Auc ? LossRange.Unit : lossRange ?? throw AccountantException.BadArguments(
             $"{metric.Name()} needs a declared loss range that each example's loss is clipped to; give --loss-range LO,HI, for example 0,10.");
         if (metric.IsZeroOne() && lossRange is { } given && given != LossRange.Unit)
         {
             throw AccountantException.BadArguments($"{metric.Name()} uses 0/1 losses, so its loss range is 0,1; leave out --loss-range.");
+        }
+
+        if (metric == Metric.Auc && lossRange is { } aucRange && aucRange != LossRange.Unit)
+        {
+            throw AccountantException.BadArguments("auc lies in [0, 1]; leave out --loss-range.");
         }
 
         var prepared = new List<HoldoutExample>();
@@ -95,7 +113,12 @@ public sealed class Bookkeeper : IDisposable
                 throw AccountantException.BadInput($"example '{Losses.Shorten(id)}' of the holdout has an empty label; give every example its label.");
             }
 
-            if (!metric.IsZeroOne() && !double.TryParse(label, System.Globalization.NumberStyles.Float, System.Globalization.CultureInfo.InvariantCulture, out _))
+            if (metric == Metric.Auc && label is not ("0" or "1"))
+            {
+                throw AccountantException.BadInput($"example '{Losses.Shorten(id)}' has the label '{Losses.Shorten(label)}'; auc needs binary labels written 1 (positive) or 0 (negative).");
+            }
+
+            if (metric is Metric.AbsoluteError or Metric.SquaredError && !double.TryParse(label, System.Globalization.NumberStyles.Float, System.Globalization.CultureInfo.InvariantCulture, out _))
             {
                 throw AccountantException.BadInput($"example '{Losses.Shorten(id)}' has the label '{Losses.Shorten(label)}', which is not a finite number; {metric.Name()} needs numeric labels written with a '.' decimal point.");
             }
@@ -106,6 +129,11 @@ public sealed class Bookkeeper : IDisposable
         if (prepared.Count == 0)
         {
             throw AccountantException.BadInput("the holdout has no examples; give a labels file with a header and at least one row.");
+        }
+
+        if (metric == Metric.Auc && (prepared.All(e => e.Label == "1") || prepared.All(e => e.Label == "0")))
+        {
+            throw AccountantException.BadInput("an auc holdout needs both positive (1) and negative (0) examples.");
         }
 
         prepared.Sort((a, b) => string.CompareOrdinal(a.Id, b.Id));
@@ -157,11 +185,18 @@ public sealed class Bookkeeper : IDisposable
         var holdout = Holdout(holdoutName);
         IReadOnlyList<HoldoutExample>? examples = null;
         var prepared = new List<NewLook>(inputs.Count);
+        Dictionary<string, GuardState>? streams = null;
         for (var i = 0; i < inputs.Count; i++)
         {
             try
             {
-                prepared.Add(Prepare(holdout, inputs[i], ref examples));
+                var look = Prepare(holdout, inputs[i], ref examples);
+                if (inputs[i].Guard is { } guard)
+                {
+                    look = Release(holdout, look, guard, inputs[i].TrainScore, ref examples, streams ??= Streams(holdout));
+                }
+
+                prepared.Add(look);
             }
             catch (AccountantException e) when (inputs.Count > 1 || describe is not null)
             {
@@ -199,6 +234,52 @@ public sealed class Bookkeeper : IDisposable
         return new NewLook(configuration, score, LossEncoding.None, null, input.Search, input.Stage, input.Adaptive, input.Seconds);
     }
 
+    /// <summary>What each guard stream on the holdout has released so far, from the ledger.</summary>
+    private Dictionary<string, GuardState> Streams(Holdout holdout)
+    {
+        var streams = new Dictionary<string, GuardState>(StringComparer.Ordinal);
+        foreach (var look in Store.Looks(holdout))
+        {
+            if (look.Release is not { } r) continue;
+            var state = streams.GetValueOrDefault(r.Guard, GuardState.Empty);
+            streams[r.Guard] = new GuardState(state.Releases + 1, state.HoldoutAnswers + (r.HoldoutAnswered ? 1 : 0), r.Value ?? state.LastReleased);
+        }
+
+        return streams;
+    }
+
+    private NewLook Release(Holdout holdout, NewLook look, GuardSpec guard, double? trainScore, ref IReadOnlyList<HoldoutExample>? examples, Dictionary<string, GuardState> streams)
+    {
+        var key = guard.ToString();
+        var state = streams.GetValueOrDefault(key, GuardState.Empty);
+        if (!_thresholds.TryGetValue(key, out var noise)) _thresholds[key] = noise = new ThresholdoutNoise();
+        var release = Guard.Apply(guard, state, look.Score, Space(holdout, ref examples), holdout.Metric.HigherIsBetter(), trainScore, GuardRandom, noise);
+        streams[key] = new GuardState(state.Releases + 1, state.HoldoutAnswers + (release.HoldoutAnswered ? 1 : 0), release.Value ?? state.LastReleased);
+        return look with { Release = new Released(key, release.Value, release.HoldoutAnswered, trainScore) };
+    }
+
+    /// <summary>The values a released score on this holdout can take, for counting transcripts.</summary>
+    public ValueSpace Space(Holdout holdout)
+    {
+        IReadOnlyList<HoldoutExample>? examples = null;
+        return Space(holdout, ref examples);
+    }
+
+    private ValueSpace Space(Holdout holdout, ref IReadOnlyList<HoldoutExample>? examples)
+    {
+        switch (holdout.Metric)
+        {
+            case Metric.Error or Metric.Accuracy:
+                return ValueSpace.ZeroOne(holdout.Size);
+            case Metric.Auc:
+                examples ??= Store.Examples(holdout);
+                var positives = examples.Count(e => e.Label == Losses.PositiveLabel);
+                return ValueSpace.Auc(positives, holdout.Size - positives);
+            default:
+                return ValueSpace.Bounded(holdout.LossRange.Low, holdout.LossRange.High);
+        }
+    }
+
     /// <summary>Marks a look as a mistake. It cannot be selected any more, and it still counts.</summary>
     public LookVoid Void(string holdoutName, int lookNumber, string reason)
     {
@@ -213,7 +294,9 @@ public sealed class Bookkeeper : IDisposable
     public Statement Statement(string holdoutName, StatementOptions? options = null)
     {
         var holdout = Holdout(holdoutName);
-        return StatementBuilder.Build(holdout, Store.Looks(holdout), Store.Voids(holdout), Store.ChainHead(), options);
+        long? positives = holdout.Metric == Metric.Auc ? Store.Examples(holdout).Count(e => e.Label == Losses.PositiveLabel) : null;
+        var inputs = new StatementInputs(positives is { } p ? ValueSpace.Auc(p, holdout.Size - p) : null, positives, look => Store.LossBytes(holdout, look.Number));
+        return StatementBuilder.Build(holdout, Store.Looks(holdout), Store.Voids(holdout), Store.ChainHead(), options, inputs);
     }
 
     public ChainReport Verify(string? expectedHead = null) => Store.Verify(expectedHead);

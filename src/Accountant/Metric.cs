@@ -13,6 +13,8 @@ public enum Metric
     AbsoluteError,
     /// <summary>Mean squared error, each example's loss clipped to the declared range. Lower is better.</summary>
     SquaredError,
+    /// <summary>Area under the ROC curve of prediction scores against binary labels. Higher is better.</summary>
+    Auc,
 }
 
 public static class MetricExtensions
@@ -23,13 +25,14 @@ public static class MetricExtensions
         Metric.Accuracy => "accuracy",
         Metric.AbsoluteError => "absolute-error",
         Metric.SquaredError => "squared-error",
+        Metric.Auc => "auc",
         _ => throw new ArgumentOutOfRangeException(nameof(metric)),
     };
 
     /// <summary>True for metrics computed from 0/1 losses (error and accuracy).</summary>
     public static bool IsZeroOne(this Metric metric) => metric is Metric.Error or Metric.Accuracy;
 
-    public static bool HigherIsBetter(this Metric metric) => metric == Metric.Accuracy;
+    public static bool HigherIsBetter(this Metric metric) => metric is Metric.Accuracy or Metric.Auc;
 
     public static bool TryParse(string? text, [NotNullWhen(true)] out Metric? metric)
     {
@@ -39,6 +42,7 @@ public static class MetricExtensions
             "accuracy" => Metric.Accuracy,
             "absolute-error" => Metric.AbsoluteError,
             "squared-error" => Metric.SquaredError,
+            "auc" => Metric.Auc,
             _ => null,
         };
         return metric is not null;
@@ -47,5 +51,5 @@ public static class MetricExtensions
     public static Metric Parse(string text) =>
         TryParse(text, out var metric)
             ? metric.Value
-            : throw AccountantException.BadArguments($"unknown metric '{text}'; use one of error, accuracy, absolute-error, squared-error.");
+            : throw AccountantException.BadArguments($"unknown metric '{text}'; use one of error, accuracy, absolute-error, squared-error, auc.");
 }

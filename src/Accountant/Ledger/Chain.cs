@@ -47,7 +47,7 @@ public static class Chain
     });
 
     public static byte[] LookEntry(long sequence, string holdoutFingerprint, int number, string configuration, string configurationDigest,
-        double score, bool adaptive, LossEncoding encoding, byte[]? losses, string? search, string? stage, double? seconds, string recordedAt) => Write(w =>
+        double score, bool adaptive, LossEncoding encoding, byte[]? losses, string? search, string? stage, double? seconds, string recordedAt, Released? release = null) => Write(w =>
     {
         w.WriteString("kind", "look");
         w.WriteNumber("seq", sequence);
@@ -63,6 +63,14 @@ public static class Chain
         w.WriteString("stage", stage);
         w.WriteString("seconds", seconds is { } t ? Number(t) : null);
         w.WriteString("recordedAt", recordedAt);
+        // Schema 2: written only for looks released through a guard, so entries of schema 1 hash as before.
+        if (release is not null)
+        {
+            w.WriteString("guard", release.Guard);
+            w.WriteString("released", release.Value is { } v ? Number(v) : null);
+            w.WriteBoolean("holdoutAnswered", release.HoldoutAnswered);
+            w.WriteString("trainScore", release.TrainScore is { } s ? Number(s) : null);
+        }
     });
 
     public static byte[] VoidEntry(long sequence, string holdoutFingerprint, int lookNumber, string reason, string recordedAt) => Write(w =>

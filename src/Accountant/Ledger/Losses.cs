@@ -14,7 +14,7 @@ public sealed record LossVector(LossEncoding Encoding, byte[] Bytes, double Scor
     public double this[int i] => Encoding switch
     {
         LossEncoding.Bitset => (Bytes[i >> 3] >> (i & 7)) & 1,
-        LossEncoding.Float32 => BinaryPrimitives.ReadSingleLittleEndian(Bytes.AsSpan(4 * i, 4)),
+        LossEncoding.Float32 or LossEncoding.Scores => BinaryPrimitives.ReadSingleLittleEndian(Bytes.AsSpan(4 * i, 4)),
         _ => throw new InvalidOperationException("no per-example losses"),
     };
 }
@@ -62,9 +62,12 @@ public static class Losses
             throw AccountantException.BadInput($"the predictions miss {count} of holdout '{holdout.Name}''s {examples.Count} ids (the first is '{Shorten(examples[missing].Id)}'); give a prediction for every example.");
         }
 
-        return holdout.Metric.IsZeroOne()
-            ? ZeroOne(holdout, examples, seen!)
-            : Bounded(holdout, examples, seen!);
+        return holdout.Metric switch
+        {
+            Metric.Error or Metric.Accuracy => ZeroOne(holdout, examples, seen!),
+            Metric.Auc => Scores(holdout, examples, seen!),
+            _ => Bounded(holdout, examples, seen!),
+        };
     }
 
     private static LossVector ZeroOne(Holdout holdout, IReadOnlyList<HoldoutExample> examples, string[] predictions)
@@ -113,6 +116,29 @@ public static class Losses
         return new LossVector(LossEncoding.Float32, bytes, sum / examples.Count, examples.Count);
     }
 
+    /// <summary>The label text AUC holdouts use for the positive class.</summary>
+    public const string PositiveLabel = "1";
+
+    private static LossVector Scores(Holdout holdout, IReadOnlyList<HoldoutExample> examples, string[] predictions)
+    {
+        var bytes = new byte[4 * examples.Count];
+        var scores = new double[examples.Count];
+        var positive = new bool[examples.Count];
+        for (var i = 0; i < examples.Count; i++)
+        {
+            if (!float.TryParse(predictions[i].Trim(), NumberStyles.Float, CultureInfo.InvariantCulture, out var score) || !float.IsFinite(score))
+            {
+                throw AccountantException.BadInput($"the prediction '{Shorten(predictions[i])}' for id '{Shorten(examples[i].Id)}' is not a finite number; auc needs a score per example (higher meaning more likely positive), written with a '.' decimal point.");
+            }
+
+            BinaryPrimitives.WriteSingleLittleEndian(bytes.AsSpan(4 * i, 4), score);
+            scores[i] = score;
+            positive[i] = examples[i].Label == PositiveLabel;
+        }
+
+        return new LossVector(LossEncoding.Scores, bytes, Bounds.AucUnion.Compute(scores, positive), examples.Count);
+    }
+
     /// <summary>Reads back the mean of a stored loss vector, the way <see cref="Compute"/> produced it.</summary>
     public static double Mean(Holdout holdout, LossEncoding encoding, byte[] bytes)
     {
@@ -126,7 +152,7 @@ public static class Losses
     /// <summary>Checks a score given without predictions: finite and inside the metric's range.</summary>
     public static void CheckScore(Holdout holdout, double score)
     {
-        var range = holdout.Metric.IsZeroOne() ? LossRange.Unit : holdout.LossRange;
+        var range = holdout.Metric.IsZeroOne() || holdout.Metric == Metric.Auc ? LossRange.Unit : holdout.LossRange;
         if (!double.IsFinite(score))
         {
             throw AccountantException.BadInput($"the score {score.ToString(CultureInfo.InvariantCulture)} is not a finite number; give the look's {holdout.Metric.Name()} on holdout '{holdout.Name}'.");

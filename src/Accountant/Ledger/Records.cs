@@ -24,7 +24,16 @@ public enum LossEncoding
     Bitset = 1,
     /// <summary>Bounded losses as little-endian float32, one per example in id order.</summary>
     Float32 = 2,
+    /// <summary>Prediction scores (for AUC) as little-endian float32, one per example in id order.</summary>
+    Scores = 3,
 }
+
+/// <summary>How a look's score was released to the search that made it: the guard's spelling and what it told.</summary>
+/// <param name="Guard">The guard's canonical spelling (its stream), e.g. <c>ladder:0.01</c>.</param>
+/// <param name="Value">The value told to the search; null when the guard refused (Thresholdout's budget spent).</param>
+/// <param name="HoldoutAnswered">Whether the holdout itself was used for the answer (Thresholdout answers from training data otherwise).</param>
+/// <param name="TrainScore">The training-set score Thresholdout compared against, when given.</param>
+public sealed record Released(string Guard, double? Value, bool HoldoutAnswered, double? TrainScore);
 
 /// <summary>A look to append: what was scored and how it did.</summary>
 public sealed record NewLook(
@@ -35,7 +44,8 @@ public sealed record NewLook(
     string? Search = null,
     string? Stage = null,
     bool Adaptive = false,
-    double? Seconds = null);
+    double? Seconds = null,
+    Released? Release = null);
 
 /// <summary>A look as stored. <see cref="Number"/> counts 1, 2, 3, … per holdout in the order recorded.</summary>
 public sealed record Look(
@@ -49,7 +59,8 @@ public sealed record Look(
     string? Stage,
     bool Adaptive,
     DateTimeOffset RecordedAt,
-    double? Seconds = null)
+    double? Seconds = null,
+    Released? Release = null)
 {
     public bool HasLosses => LossEncoding != LossEncoding.None;
 }

@@ -25,7 +25,7 @@ internal sealed class SqliteChainVerifier(SqliteConnection connection)
 
         using var entries = Command("SELECT seq, kind, prev_hash, hash FROM entries ORDER BY seq;");
         using var holdout = Command("SELECT id, name, size, metric, loss_low, loss_high, fingerprint, ids, labels, created_at FROM holdouts WHERE seq = $seq;");
-        using var look = Command("SELECT holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at FROM looks WHERE seq = $seq;");
+        using var look = Command("SELECT holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at, guard, released, holdout_answered, train_score FROM looks WHERE seq = $seq;");
         using var @void = Command("SELECT holdout_id, look_number, reason, recorded_at FROM voids WHERE seq = $seq;");
         foreach (var command in new[] { holdout, look, @void })
         {
@@ -176,9 +176,10 @@ internal sealed class SqliteChainVerifier(SqliteConnection connection)
         var encoding = (LossEncoding)r.GetInt32(6);
         var losses = r.IsDBNull(7) ? null : (byte[])r.GetValue(7);
         var score = r.GetDouble(4);
-        if (losses is not null)
+        if (losses is not null && encoding is LossEncoding.Bitset or LossEncoding.Float32)
         {
             var expectedLength = encoding == LossEncoding.Bitset ? (holdout.Size + 7) / 8 : 4L * holdout.Size;
+            // (Scores, for AUC, are covered by the hash like every field; the AUC needs the labels to recompute.)
             if (losses.Length != expectedLength)
             {
                 return ([], $"entry {sequence} (look {number}) has per-example losses of the wrong length");
@@ -192,7 +193,8 @@ internal sealed class SqliteChainVerifier(SqliteConnection connection)
         }
 
         return (Chain.LookEntry(sequence, holdout.Fingerprint, number, configuration, digest, score, r.GetInt32(5) != 0, encoding, losses,
-            r.IsDBNull(8) ? null : r.GetString(8), r.IsDBNull(9) ? null : r.GetString(9), r.IsDBNull(10) ? null : r.GetDouble(10), r.GetString(11)), null);
+            r.IsDBNull(8) ? null : r.GetString(8), r.IsDBNull(9) ? null : r.GetString(9), r.IsDBNull(10) ? null : r.GetDouble(10), r.GetString(11),
+            SqliteLedgerStore.ReadRelease(r, 12)), null);
     }
 
     private static (byte[], string?) Void(SqliteCommand command, long sequence, Dictionary<long, HoldoutState> holdouts)

@@ -14,7 +14,8 @@ namespace Accountant.Ledger;
 public sealed class SqliteLedgerStore : ILedgerStore
 {
     /// <summary>The schema version this build writes (PRAGMA user_version).</summary>
-    public const int SchemaVersion = 1;
+    /// <remarks>Version 2 added how a look was released (guard, released value, holdout answered, training score).</remarks>
+    public const int SchemaVersion = 2;
 
     /// <summary>PRAGMA application_id: the bytes "ACNT".</summary>
     public const int ApplicationId = 0x41434E54;
@@ -145,6 +146,10 @@ public sealed class SqliteLedgerStore : ILedgerStore
         }
 
         TryWal();
+        if (version < SchemaVersion)
+        {
+            Upgrade(version);
+        }
     }
 
     private void TryWal()
@@ -159,13 +164,36 @@ public sealed class SqliteLedgerStore : ILedgerStore
         }
     }
 
+    /// <summary>
+    /// Upgrades an older ledger in place, in one transaction. Columns are only added, never changed, and the canonical
+    /// form of old entries is unchanged, so the chain verifies as before.
+    /// </summary>
+    private void Upgrade(int from)
+    {
+        using var transaction = _connection.BeginTransaction(deferred: false);
+        var current = Convert.ToInt32(Scalar("PRAGMA user_version;"), CultureInfo.InvariantCulture);
+        if (current == from && from == 1)
+        {
+            Execute(_connection, V2Columns + $"PRAGMA user_version = {SchemaVersion};");
+        }
+
+        transaction.Commit();
+    }
+
+    private const string V2Columns = """
+        ALTER TABLE looks ADD COLUMN guard TEXT;
+        ALTER TABLE looks ADD COLUMN released REAL;
+        ALTER TABLE looks ADD COLUMN holdout_answered INTEGER;
+        ALTER TABLE looks ADD COLUMN train_score REAL;
+        """;
+
     private void Initialize()
     {
         Execute(_connection, "PRAGMA journal_mode = WAL;");
         using var transaction = _connection.BeginTransaction(deferred: false);
         Execute(_connection, $"""
             PRAGMA application_id = {ApplicationId};
-            PRAGMA user_version = {SchemaVersion};
+            PRAGMA user_version = 1;
             CREATE TABLE entries (
                 seq       INTEGER PRIMARY KEY,
                 kind      TEXT NOT NULL,
@@ -217,6 +245,8 @@ public sealed class SqliteLedgerStore : ILedgerStore
                 """);
         }
 
+        // A new ledger is built as version 1 and then taken through every upgrade, so new and upgraded ledgers are alike.
+        Execute(_connection, V2Columns + $"PRAGMA user_version = {SchemaVersion};");
         transaction.Commit();
     }
 
@@ -311,10 +341,12 @@ public sealed class SqliteLedgerStore : ILedgerStore
         var recorded = Chain.Timestamp(_clock.GetUtcNow());
         var written = new List<Look>(looks.Count);
         using var insert = Command("""
-            INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at)
-            VALUES ($seq, $holdout, $number, $configuration, $digest, $score, $adaptive, $encoding, $losses, $search, $stage, $seconds, $recorded);
+            INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at,
+                               guard, released, holdout_answered, train_score)
+            VALUES ($seq, $holdout, $number, $configuration, $digest, $score, $adaptive, $encoding, $losses, $search, $stage, $seconds, $recorded,
+                    $guard, $released, $answered, $train);
             """);
-        var parameters = new[] { "$seq", "$holdout", "$number", "$configuration", "$digest", "$score", "$adaptive", "$encoding", "$losses", "$search", "$stage", "$seconds", "$recorded" }
+        var parameters = new[] { "$seq", "$holdout", "$number", "$configuration", "$digest", "$score", "$adaptive", "$encoding", "$losses", "$search", "$stage", "$seconds", "$recorded", "$guard", "$released", "$answered", "$train" }
             .Select(name => insert.Parameters.Add(name, SqliteType.Text)).ToArray();
         insert.Prepare();
         using var entry = EntryInsertCommand();
@@ -323,7 +355,7 @@ public sealed class SqliteLedgerStore : ILedgerStore
             number++;
             var digest = ConfigurationJson.Digest(look.Configuration);
             var canonical = Chain.LookEntry(sequence, holdout.Fingerprint, number, look.Configuration, digest, look.Score, look.Adaptive,
-                look.LossEncoding, look.Losses, look.Search, look.Stage, look.Seconds, recorded);
+                look.LossEncoding, look.Losses, look.Search, look.Stage, look.Seconds, recorded, look.Release);
             var hash = Chain.Link(previous, canonical);
             entry.Parameters["$seq"].Value = sequence;
             entry.Parameters["$kind"].Value = "look";
@@ -347,9 +379,16 @@ public sealed class SqliteLedgerStore : ILedgerStore
             parameters[11].SqliteType = SqliteType.Real;
             parameters[11].Value = (object?)look.Seconds ?? DBNull.Value;
             parameters[12].Value = recorded;
+            parameters[13].Value = (object?)look.Release?.Guard ?? DBNull.Value;
+            parameters[14].SqliteType = SqliteType.Real;
+            parameters[14].Value = (object?)look.Release?.Value ?? DBNull.Value;
+            parameters[15].SqliteType = SqliteType.Integer;
+            parameters[15].Value = look.Release is { } r ? (r.HoldoutAnswered ? 1 : 0) : DBNull.Value;
+            parameters[16].SqliteType = SqliteType.Real;
+            parameters[16].Value = (object?)look.Release?.TrainScore ?? DBNull.Value;
             insert.ExecuteNonQuery();
 
-            written.Add(new Look(sequence, number, look.Configuration, digest, look.Score, look.LossEncoding, look.Search, look.Stage, look.Adaptive, Chain.ParseTimestamp(recorded), look.Seconds));
+            written.Add(new Look(sequence, number, look.Configuration, digest, look.Score, look.LossEncoding, look.Search, look.Stage, look.Adaptive, Chain.ParseTimestamp(recorded), look.Seconds, look.Release));
             previous = hash;
             sequence++;
         }
@@ -388,7 +427,8 @@ public sealed class SqliteLedgerStore : ILedgerStore
     public IReadOnlyList<Look> Looks(Holdout holdout) => Guarded(() =>
     {
         using var command = Command("""
-            SELECT seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at, seconds
+            SELECT seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at, seconds,
+                   guard, released, holdout_answered, train_score
             FROM looks WHERE holdout_id = $id ORDER BY number;
             """);
         command.Parameters.AddWithValue("$id", holdout.Key);
@@ -407,11 +447,21 @@ public sealed class SqliteLedgerStore : ILedgerStore
                 reader.IsDBNull(7) ? null : reader.GetString(7),
                 reader.GetInt32(8) != 0,
                 Chain.ParseTimestamp(reader.GetString(9)),
-                reader.IsDBNull(10) ? null : reader.GetDouble(10)));
+                reader.IsDBNull(10) ? null : reader.GetDouble(10),
+                ReadRelease(reader, 11)));
         }
 
         return looks;
     });
+
+    /// <summary>Reads the four release columns starting at <paramref name="first"/>; null when the look had no guard.</summary>
+    internal static Released? ReadRelease(SqliteDataReader reader, int first) => reader.IsDBNull(first)
+        ? null
+        : new Released(
+            reader.GetString(first),
+            reader.IsDBNull(first + 1) ? null : reader.GetDouble(first + 1),
+            !reader.IsDBNull(first + 2) && reader.GetInt32(first + 2) != 0,
+            reader.IsDBNull(first + 3) ? null : reader.GetDouble(first + 3));
 
     public IReadOnlyList<LookVoid> Voids(Holdout holdout) => Guarded(() =>
     {

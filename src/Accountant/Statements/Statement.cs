@@ -24,7 +24,8 @@ public sealed record StatementOptions
 /// <param name="Lower">The interval's lower end on the metric's own scale (two-sided statements; else the range's end).</param>
 /// <param name="Upper">The interval's upper end on the metric's own scale.</param>
 /// <param name="Reference">Where the method is published.</param>
-public sealed record BoundLine(string Method, double Bound, double Margin, bool Guarantee, double Lower, double Upper, string Reference);
+/// <param name="Tightest">True on the guarantee with the smallest margin.</param>
+public sealed record BoundLine(string Method, double Bound, double Margin, bool Guarantee, double Lower, double Upper, string Reference, bool Tightest = false);
 
 /// <summary>Looks used and left at a tolerance: the most looks whose margin stays within it.</summary>
 public sealed record Budget(double Tolerance, string Method, long MaxLooks, long LooksUsed)
@@ -45,6 +46,8 @@ public sealed record Statement(
     int AdaptiveLooks,
     int VoidedLooks,
     int ScoreOnlyLooks,
+    double LogEffectiveLooks,
+    bool UnguardedAdaptivity,
     Look? Best,
     IReadOnlyList<BoundLine> Bounds,
     Budget Budget,
@@ -52,6 +55,9 @@ public sealed record Statement(
     IReadOnlyList<StatementWarning> Warnings,
     IReadOnlyList<string> Cautions)
 {
-    /// <summary>The default method's line: binomial-union for 0/1 losses, hoeffding-union otherwise.</summary>
+    /// <summary>The tightest guarantee's line (bounds are listed tightest first).</summary>
     public BoundLine? Primary => Bounds.Count > 0 ? Bounds[0] : null;
+
+    /// <summary>The effective number of looks the bounds are corrected for, e^(ln M_eff); equals <see cref="Looks"/> without adaptive looks.</summary>
+    public double EffectiveLooks => Math.Exp(LogEffectiveLooks);
 }

@@ -1,36 +1,57 @@
 using System.Globalization;
 using Accountant.Bounds;
+using Accountant.Guards;
 using Accountant.Ledger;
 
 namespace Accountant.Statements;
 
 /// <summary>
 /// Puts a holdout's looks and the bounds together. M counts every look: every configuration, stage, rerun and
-/// voided look. The selected look is the best non-voided one (earliest on ties); the union bound over all M
-/// looks holds for every look at once, so it holds for the selected one whichever it is.
+/// voided look. The selected look is the best non-voided one (earliest on ties); a union bound over all M looks holds
+/// for every look at once, so it holds for the selected one whichever it is. When some looks were adaptive, the
+/// union runs instead over every look that could have been made (<see cref="AdaptiveAccounting"/>): ln M_eff.
 /// </summary>
 public static class StatementBuilder
 {
     public const string HoeffdingReference = "Hoeffding 1963, JASA 58:13; union (Bonferroni) bound over the looks";
     public const string BinomialReference = "Clopper & Pearson 1934, Biometrika 26:404; Langford 2005, JMLR 6:273, with a union bound over the looks";
+    public const string KlReference = "Chernoff bound in relative-entropy form, Langford 2005, JMLR 6:273, with a union bound over the looks";
+    public const string BernsteinReference = "Maurer & Pontil 2009, arXiv 0907.3740, Thm 4, with a union bound over the looks";
+    public const string AucReference = "Agarwal et al. 2005, JMLR 6:393, with a union bound over the looks";
+    public const string TranscriptReference = "union over every look the guards' possible releases could have led to: Dwork et al. 2015, arXiv 1506.02629, Thm 9";
+    public const string AdaptiveMethod = "adaptive-transcript";
 
-    public static Statement Build(Holdout holdout, IReadOnlyList<Look> looks, IReadOnlyList<LookVoid> voids, string? chainHead, StatementOptions? options = null)
+    public static Statement Build(Holdout holdout, IReadOnlyList<Look> looks, IReadOnlyList<LookVoid> voids, string? chainHead,
+        StatementOptions? options = null, StatementInputs? inputs = null)
     {
         options ??= new StatementOptions();
+        inputs ??= StatementInputs.None;
         Require.Delta(options.Delta);
         Require.Tolerance(options.Tolerance);
 
         var voided = voids.Select(v => v.LookNumber).ToHashSet();
         var best = SelectBest(holdout.Metric, looks, voided);
         var m = looks.Count;
-        var bounds = best is null ? [] : BoundsFor(holdout, best.Score, m, options);
-        var budget = BudgetFor(holdout, best?.Score, m, options);
+        var accounted = looks.Select(l => new AccountedLook(l.Adaptive, l.Release is { } r ? GuardSpec.Parse(r.Guard) : GuardSpec.Exact)).ToList();
+        var adaptive = looks.Count(l => l.Adaptive);
+        var space = inputs.Space ?? DefaultSpace(holdout, inputs.Positives);
+        var logLooks = m == 0 ? 0.0 : adaptive == 0 ? Math.Log(m) : AdaptiveAccounting.LogEffectiveLooks(accounted, space);
+        var bounds = best is null ? [] : BoundsFor(holdout, best, logLooks, adaptive > 0, options, inputs);
+        var budget = BudgetFor(holdout, best?.Score, logLooks, options, inputs.Positives);
         var scoreOnly = looks.Count(l => !l.HasLosses);
-        var warnings = Warnings(holdout, looks, voided.Count, scoreOnly, best, bounds, budget, options);
-        return new Statement(holdout, options, m, looks.Count(l => l.Adaptive), voided.Count, scoreOnly, best, bounds, budget, chainHead, warnings, Cautions.All);
+        var unguarded = adaptive > 0 && AdaptiveAccounting.HasUnguardedAdaptivity(accounted);
+        var warnings = Warnings(holdout, looks, voided.Count, scoreOnly, adaptive, unguarded, logLooks, best, bounds, budget, options);
+        return new Statement(holdout, options, m, adaptive, voided.Count, scoreOnly, logLooks, unguarded, best, bounds, budget, chainHead, warnings, Cautions.All);
     }
 
-    /// <summary>The best non-voided look: lowest loss, or highest accuracy; the earliest wins a tie.</summary>
+    private static ValueSpace DefaultSpace(Holdout holdout, long? positives) => holdout.Metric switch
+    {
+        Metric.Error or Metric.Accuracy => ValueSpace.ZeroOne(holdout.Size),
+        Metric.Auc => ValueSpace.Auc(positives ?? 1, Math.Max(1, holdout.Size - (positives ?? 1))),
+        _ => ValueSpace.Bounded(holdout.LossRange.Low, holdout.LossRange.High),
+    };
+
+    /// <summary>The best non-voided look: lowest loss, or highest accuracy or AUC; the earliest wins a tie.</summary>
     public static Look? SelectBest(Metric metric, IReadOnlyList<Look> looks, IReadOnlySet<int> voided)
     {
         Look? best = null;
@@ -62,30 +83,81 @@ public static class StatementBuilder
         return Math.Clamp((long)(roundUp ? Math.Ceiling(exact) : Math.Floor(exact)), 0, n);
     }
 
-    public static IReadOnlyList<BoundLine> BoundsFor(Holdout holdout, double observed, long looks, StatementOptions options)
+    /// <summary>
+    /// Every applicable guarantee for the selected look, tightest first. Non-adaptive: binomial-union, kl-union and
+    /// hoeffding-union for 0/1 losses; hoeffding-union, kl-union and (with per-example losses) empirical-bernstein-union for
+    /// bounded losses; auc-union for AUC. With adaptive looks the union bounds do not hold and are not listed: the
+    /// adaptive-transcript method applies the metric's tightest tail (exact binomial, Hoeffding, or the AUC bound) at δ/M_eff.
+    /// </summary>
+    public static IReadOnlyList<BoundLine> BoundsFor(Holdout holdout, Look best, double logLooks, bool adaptive, StatementOptions options, StatementInputs inputs)
     {
         var n = holdout.Size;
         var delta = options.Delta;
+        var sided = options.Sided;
+        var observed = best.Score;
         var lines = new List<BoundLine>();
-        if (holdout.Metric.IsZeroOne())
+        switch (holdout.Metric)
         {
-            var accuracy = holdout.Metric == Metric.Accuracy;
-            var error = accuracy ? 1.0 - observed : observed;
-            var kUp = ErrorCount(error, n, roundUp: true);
-            var kDown = ErrorCount(error, n, roundUp: false);
-            var upper = BinomialUnion.Bound(kUp, n, looks, delta, options.Sided).Upper;
-            var lower = options.Sided == Sidedness.TwoSided ? BinomialUnion.Bound(kDown, n, looks, delta, options.Sided).Lower : 0.0;
-            lines.Add(Line(BinomialUnion.Name, accuracy, observed, new Interval(lower, upper), BinomialReference));
-            var hoeffding = HoeffdingUnion.Bound(error, n, looks, delta, LossRange.Unit, options.Sided);
-            lines.Add(Line(HoeffdingUnion.Name, accuracy, observed, hoeffding, HoeffdingReference));
-        }
-        else
-        {
-            var hoeffding = HoeffdingUnion.Bound(observed, n, looks, delta, holdout.LossRange, options.Sided);
-            lines.Add(Line(HoeffdingUnion.Name, false, observed, hoeffding, HoeffdingReference));
+            case Metric.Error or Metric.Accuracy:
+            {
+                var accuracy = holdout.Metric == Metric.Accuracy;
+                var error = accuracy ? 1.0 - observed : observed;
+                var kUp = ErrorCount(error, n, roundUp: true);
+                var kDown = ErrorCount(error, n, roundUp: false);
+                Interval Binomial() => new(
+                    sided == Sidedness.TwoSided ? BinomialUnion.BoundLog(kDown, n, logLooks, delta, sided).Lower : 0.0,
+                    BinomialUnion.BoundLog(kUp, n, logLooks, delta, sided).Upper);
+                if (adaptive)
+                {
+                    lines.Add(Line(AdaptiveMethod, accuracy, observed, Binomial(), TranscriptReference));
+                    break;
+                }
+
+                lines.Add(Line(BinomialUnion.Name, accuracy, observed, Binomial(), BinomialReference));
+                var kl = KlUnion.Bound(kUp / (double)n, n, logLooks, delta, sided);
+                var klLow = sided == Sidedness.TwoSided ? KlUnion.Bound(kDown / (double)n, n, logLooks, delta, sided).Lower : 0.0;
+                lines.Add(Line(KlUnion.Name, accuracy, observed, new Interval(klLow, kl.Upper), KlReference));
+                lines.Add(Line(HoeffdingUnion.Name, accuracy, observed, HoeffdingUnion.BoundLog(error, n, logLooks, delta, LossRange.Unit, sided), HoeffdingReference));
+                break;
+            }
+
+            case Metric.Auc:
+            {
+                var positives = inputs.Positives ?? throw new InvalidOperationException("AUC statements need the number of positives.");
+                var margin = AucUnion.Margin(positives, n - positives, logLooks, delta, sided);
+                var interval = new Interval(Math.Max(0, observed - margin), sided == Sidedness.TwoSided ? Math.Min(1, observed + margin) : 1.0);
+                lines.Add(HigherLine(adaptive ? AdaptiveMethod : AucUnion.Name, observed, interval, adaptive ? TranscriptReference : AucReference));
+                break;
+            }
+
+            default:
+            {
+                var range = holdout.LossRange;
+                var hoeffding = HoeffdingUnion.BoundLog(observed, n, logLooks, delta, range, sided);
+                if (adaptive)
+                {
+                    lines.Add(Line(AdaptiveMethod, false, observed, hoeffding, TranscriptReference));
+                    break;
+                }
+
+                lines.Add(Line(HoeffdingUnion.Name, false, observed, hoeffding, HoeffdingReference));
+                lines.Add(Line(KlUnion.Name, false, observed, KlUnion.Bound(observed, n, logLooks, delta, range, sided), KlReference));
+                if (best.LossEncoding == LossEncoding.Float32 && inputs.LossesOf?.Invoke(best) is { } bytes && n >= 2)
+                {
+                    var vector = new LossVector(LossEncoding.Float32, bytes, observed, n);
+                    var variance = EmpiricalBernsteinUnion.SampleVariance(Enumerable.Range(0, n).Select(i => vector[i]));
+                    var margin = EmpiricalBernsteinUnion.Margin(n, variance, logLooks, delta, range.Width, sided);
+                    var interval = new Interval(sided == Sidedness.TwoSided ? Math.Max(range.Low, observed - margin) : range.Low, Math.Min(range.High, observed + margin));
+                    lines.Add(Line(EmpiricalBernsteinUnion.Name, false, observed, interval, BernsteinReference));
+                }
+
+                break;
+            }
         }
 
-        return lines;
+        var ordered = lines.OrderBy(l => l.Margin).ToList();
+        ordered[0] = ordered[0] with { Tightest = true };
+        return ordered;
     }
 
     private static BoundLine Line(string method, bool complement, double observed, Interval onLoss, string reference)
@@ -96,21 +168,34 @@ public static class StatementBuilder
         return new BoundLine(method, bound, Math.Abs(bound - observed), Guarantee: true, lower, upper, reference);
     }
 
-    public static Budget BudgetFor(Holdout holdout, double? bestScore, long looks, StatementOptions options)
+    private static BoundLine HigherLine(string method, double observed, Interval interval, string reference) =>
+        new(method, interval.Lower, Math.Abs(observed - interval.Lower), Guarantee: true, interval.Lower, interval.Upper, reference);
+
+    /// <summary>
+    /// The budget: the most (effective) looks whose margin stays within the tolerance, by the metric's default method at
+    /// the best look's score. Looks used are the effective looks, e^(ln M_eff), saturating.
+    /// </summary>
+    public static Budget BudgetFor(Holdout holdout, double? bestScore, double logLooks, StatementOptions options, long? positives = null)
     {
+        var used = logLooks >= Math.Log(long.MaxValue) ? long.MaxValue : (long)Math.Round(Math.Exp(logLooks));
         if (holdout.Metric.IsZeroOne() && bestScore is { } score)
         {
             var error = holdout.Metric == Metric.Accuracy ? 1.0 - score : score;
             var k = ErrorCount(error, holdout.Size, roundUp: true);
-            return new Budget(options.Tolerance, BinomialUnion.Name, BinomialUnion.MaxLooks(k, holdout.Size, options.Tolerance, options.Delta, options.Sided), looks);
+            return new Budget(options.Tolerance, BinomialUnion.Name, BinomialUnion.MaxLooks(k, holdout.Size, options.Tolerance, options.Delta, options.Sided), used);
         }
 
-        var width = holdout.Metric.IsZeroOne() ? 1.0 : holdout.LossRange.Width;
-        return new Budget(options.Tolerance, HoeffdingUnion.Name, HoeffdingUnion.MaxLooks(holdout.Size, options.Tolerance, options.Delta, width, options.Sided), looks);
+        if (holdout.Metric == Metric.Auc && positives is { } p)
+        {
+            return new Budget(options.Tolerance, AucUnion.Name, AucUnion.MaxLooks(p, holdout.Size - p, options.Tolerance, options.Delta, options.Sided), used);
+        }
+
+        var width = holdout.Metric.IsZeroOne() || holdout.Metric == Metric.Auc ? 1.0 : holdout.LossRange.Width;
+        return new Budget(options.Tolerance, HoeffdingUnion.Name, HoeffdingUnion.MaxLooks(holdout.Size, options.Tolerance, options.Delta, width, options.Sided), used);
     }
 
-    private static List<StatementWarning> Warnings(Holdout holdout, IReadOnlyList<Look> looks, int voided, int scoreOnly, Look? best,
-        IReadOnlyList<BoundLine> bounds, Budget budget, StatementOptions options)
+    private static List<StatementWarning> Warnings(Holdout holdout, IReadOnlyList<Look> looks, int voided, int scoreOnly, int adaptive, bool unguarded,
+        double logLooks, Look? best, IReadOnlyList<BoundLine> bounds, Budget budget, StatementOptions options)
     {
         var warnings = new List<StatementWarning>();
         string F(double x) => x.ToString("0.####", CultureInfo.InvariantCulture);
@@ -123,12 +208,19 @@ public static class StatementBuilder
             warnings.Add(new("all-voided", $"every look on holdout '{holdout.Name}' is voided, so there is no selected configuration; the {looks.Count} voided looks still count."));
         }
 
+        if (unguarded)
+        {
+            var vacuous = bounds.Count > 0 && (bounds[0].Bound is 0.0 or 1.0 || bounds[0].Margin > 0.25);
+            warnings.Add(new("adaptive-unguarded", $"{adaptive} adaptive look(s) were chosen after scores released at full precision, so the accounting must count every sequence of exact scores (ln M_eff = {F(logLooks)}) and the bound is {(vacuous ? "vacuous" : "wide")}; release scores to an adaptive search through a guard (record --guard ladder:0.01 or rounded:2), or fix the configurations in advance."));
+        }
+
         if (budget.Overused)
         {
             var margin = bounds.Count > 0 ? $" the margin is now {F(bounds[0].Margin)}," : "";
+            var counted = adaptive > 0 ? $"{budget.LooksUsed} effective looks (from {looks.Count} recorded, {adaptive} adaptive)" : $"{looks.Count} looks";
             warnings.Add(budget.MaxLooks == 0
                 ? new("holdout-overused", $"even a single look's margin exceeds the tolerance {F(options.Tolerance)} at confidence {F(options.Confidence)} on {holdout.Size} examples:{margin} so this holdout is too small to tell configurations apart to that tolerance; 'accountant plan' gives the size needed.")
-                : new("holdout-overused", $"{looks.Count} looks exceed the budget of {budget.MaxLooks} at tolerance {F(options.Tolerance)} and confidence {F(options.Confidence)}:{margin} so this holdout can no longer tell configurations apart to that tolerance; collect fresh validation data for further comparisons."));
+                : new("holdout-overused", $"{counted} exceed the budget of {budget.MaxLooks} at tolerance {F(options.Tolerance)} and confidence {F(options.Confidence)}:{margin} so this holdout can no longer tell configurations apart to that tolerance; collect fresh validation data for further comparisons."));
         }
 
         if (looks.Count == 1)

@@ -23,8 +23,10 @@ public class StatementBuilderTests
         Assert.Equal(BinomialUnion.Name, statement.Bounds[0].Method);
         Assert.Equal(0.1269, statement.Bounds[0].Bound, 4);
         Assert.Equal(0.0269, statement.Bounds[0].Margin, 4);
-        Assert.Equal(HoeffdingUnion.Name, statement.Bounds[1].Method);
-        Assert.Equal(0.1515, statement.Bounds[1].Bound, 4);
+        Assert.True(statement.Bounds[0].Tightest);
+        // KL inversion at ln(10/δ)/n lies between the two (SciPy's value for M = 1 is checked in TighterBoundTests).
+        Assert.Equal([BinomialUnion.Name, KlUnion.Name, HoeffdingUnion.Name], statement.Bounds.Select(b => b.Method));
+        Assert.Equal(0.1515, statement.Bounds[2].Bound, 4);
         Assert.All(statement.Bounds, b => Assert.True(b.Guarantee));
         Assert.Equal("head", statement.ChainHead);
         Assert.Contains(statement.Warnings, w => w.Code == "score-only-looks");
@@ -70,8 +72,10 @@ public class StatementBuilderTests
     public void Regression_metrics_use_hoeffding_over_the_declared_range()
     {
         var statement = StatementBuilder.Build(Holdout(Metric.AbsoluteError, 500, new LossRange(0, 5)), Looks(1.2, 0.9), [], null);
-        Assert.Single(statement.Bounds);
-        Assert.Equal(0.9 + 5 * Math.Sqrt(Math.Log(2 / 0.05) / 1000), statement.Bounds[0].Bound, 12);
+        // Score-only looks: no per-example losses, so no empirical Bernstein line; Hoeffding and KL remain.
+        Assert.Equal(2, statement.Bounds.Count);
+        var hoeffding = statement.Bounds.Single(b => b.Method == HoeffdingUnion.Name);
+        Assert.Equal(0.9 + 5 * Math.Sqrt(Math.Log(2 / 0.05) / 1000), hoeffding.Bound, 12);
         Assert.Equal(HoeffdingUnion.MaxLooks(500, 0.02, 0.05, 5.0), statement.Budget.MaxLooks);
     }
 

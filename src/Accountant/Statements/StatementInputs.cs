@@ -1,0 +1,13 @@
+using Accountant.Guards;
+using Accountant.Ledger;
+
+namespace Accountant.Statements;
+
+/// <summary>What a statement needs beyond the looks: the values a release can take, the AUC's class counts, per-example losses.</summary>
+/// <param name="Space">The value space of a released score (for transcript counting); defaults from the metric when null.</param>
+/// <param name="Positives">For AUC holdouts: the number of positive examples.</param>
+/// <param name="LossesOf">Reads one look's per-example losses, for methods that need them (empirical Bernstein).</param>
+public sealed record StatementInputs(ValueSpace? Space = null, long? Positives = null, Func<Look, byte[]?>? LossesOf = null)
+{
+    public static StatementInputs None { get; } = new();
+}
