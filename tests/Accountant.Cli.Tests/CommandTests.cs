@@ -160,7 +160,7 @@ public sealed class CommandTests : IDisposable
         Assert.Equal(5, root.GetProperty("cautions").GetArrayLength());
 
         var markdown = _cli.Run("statement", "validation", "--format", "markdown").Out;
-        Assert.Contains("| binomial-union | 0.1269 |", markdown);
+        Assert.Contains("| **binomial-union** | 0.1269 |", markdown);
     }
 
     [Fact]
@@ -315,5 +315,54 @@ public sealed class DemoCommandTests : IDisposable
         Assert.Contains("What only a simulation can show", table.Out);
         Assert.Contains("7 counted", table.Out); // the same holdout, now with 5 + 2 looks
         Assert.Equal("", table.Err);
+    }
+}
+
+public sealed class AdaptiveCommandTests : IDisposable
+{
+    private readonly CliHarness _cli = new();
+
+    public void Dispose() => _cli.Dispose();
+
+    [Fact]
+    public void Record_with_a_guard_prints_the_released_value_and_the_statement_accounts_for_adaptivity()
+    {
+        _cli.Run("init");
+        _cli.Run("holdout", "add", "validation", "--labels", _cli.Labels(1000));
+        var first = _cli.Run("record", "validation", "--configuration", "{\"a\":1}", "--score", "0.3012", "--guard", "ladder:0.01");
+        Assert.Equal(ExitCodes.Success, first.Exit);
+        Assert.Equal("look 1 on holdout 'validation': released 0.3000 by ladder:0.01", first.Out.Trim());
+        var second = _cli.Run("record", "validation", "--configuration", "{\"a\":2}", "--score", "0.2950", "--guard", "ladder:0.01", "--adaptive");
+        Assert.Contains("(adaptive): released 0.3000", second.Out);
+        var json = System.Text.Json.JsonDocument.Parse(_cli.Run("statement", "validation", "--format", "json").Out).RootElement;
+        Assert.Equal(1, json.GetProperty("adaptiveLooks").GetInt32());
+        Assert.Equal("adaptive-transcript", json.GetProperty("bounds")[0].GetProperty("method").GetString());
+        Assert.True(json.GetProperty("bounds")[0].GetProperty("tightest").GetBoolean());
+        Assert.True(json.GetProperty("logEffectiveLooks").GetDouble() > Math.Log(2));
+        Assert.Contains("ln M_eff", _cli.Run("statement", "validation").Out);
+
+        Assert.Equal(ExitCodes.BadArguments, _cli.Run("record", "validation", "--configuration", "{}", "--score", "0.2", "--guard", "ladder").Exit);
+        var thresholdout = _cli.Run("record", "validation", "--configuration", "{}", "--score", "0.2", "--guard", "thresholdout:0.04,0.01,5");
+        Assert.Equal(ExitCodes.BadArguments, thresholdout.Exit);
+        Assert.Contains("--train-score", thresholdout.Err);
+        var told = _cli.Run("record", "validation", "--configuration", "{}", "--score", "0.2", "--guard", "thresholdout:0.04,0,5", "--train-score", "0.19", "--adaptive");
+        Assert.Contains("released 0.1900 by thresholdout:0.04,0,5", told.Out);
+    }
+
+    [Fact]
+    public void Auc_holdouts_take_scores_as_predictions()
+    {
+        _cli.Run("init");
+        var labels = _cli.Write("auc-labels.csv", "id,label\n" + string.Concat(Enumerable.Range(1, 200).Select(i => $"r{i},{(i % 4 == 0 ? 1 : 0)}\n")));
+        Assert.Equal(ExitCodes.Success, _cli.Run("holdout", "add", "ranked", "--labels", labels, "--metric", "auc").Exit);
+        // Scores that rank every positive above every negative: AUC 1.
+        var scores = _cli.Write("scores.csv", "id,prediction\n" + string.Concat(Enumerable.Range(1, 200).Select(i => $"r{i},{(i % 4 == 0 ? 0.9 : 0.1)}\n")));
+        var look = _cli.Run("record", "ranked", "--configuration", "{}", "--predictions", scores);
+        Assert.Contains("auc 1.0000", look.Out);
+        var json = System.Text.Json.JsonDocument.Parse(_cli.Run("statement", "ranked", "--format", "json").Out).RootElement;
+        // Agarwal et al. 2005 with m = 50 positives, n = 150 negatives, one look, δ = 0.05 one-sided.
+        Assert.Equal(1 - Math.Sqrt(200 * Math.Log(20) / (2.0 * 50 * 150)), json.GetProperty("bounds")[0].GetProperty("bound").GetDouble(), 12);
+        var bad = _cli.Write("bad-auc.csv", "id,label\na,1\nb,2\n");
+        Assert.Equal(ExitCodes.BadInput, _cli.Run("holdout", "add", "bad", "--labels", bad, "--metric", "auc").Exit);
     }
 }

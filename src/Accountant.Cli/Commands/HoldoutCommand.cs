@@ -21,8 +21,8 @@ internal sealed class HoldoutCommand : Command
     {
         var name = new Argument<string>("NAME") { Description = "The holdout's name." };
         var labels = new Option<string>("--labels") { Description = "CSV with a header and an id and a label column.", Required = true };
-        var metric = new Option<string>("--metric") { Description = "error, accuracy, absolute-error or squared-error.", DefaultValueFactory = _ => "error" };
-        metric.AcceptOnlyFromAmong("error", "accuracy", "absolute-error", "squared-error");
+        var metric = new Option<string>("--metric") { Description = "error, accuracy, absolute-error, squared-error, or auc (labels 0/1, predictions are scores).", DefaultValueFactory = _ => "error" };
+        metric.AcceptOnlyFromAmong("error", "accuracy", "absolute-error", "squared-error", "auc");
         var range = new Option<string?>("--loss-range") { Description = "LO,HI: the range each example's loss is clipped to (needed for absolute-error and squared-error)." };
         var idColumn = new Option<string>("--id-column") { Description = "The id column's name.", DefaultValueFactory = _ => "id" };
         var labelColumn = new Option<string>("--label-column") { Description = "The label column's name.", DefaultValueFactory = _ => "label" };

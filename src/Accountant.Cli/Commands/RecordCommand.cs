@@ -1,6 +1,7 @@
 using System.CommandLine;
 using System.Globalization;
 using Accountant.Cli.Input;
+using Accountant.Guards;
 using Accountant.Cli.Output;
 
 namespace Accountant.Cli.Commands;
@@ -18,9 +19,13 @@ internal sealed class RecordCommand : Command
         var stage = new Option<string?>("--stage") { Description = "The fidelity of a partial evaluation, e.g. 0.25 of the training budget." };
         var idColumn = new Option<string>("--id-column") { Description = "The predictions' id column.", DefaultValueFactory = _ => "id" };
         var predictionColumn = new Option<string>("--prediction-column") { Description = "The predictions' prediction column.", DefaultValueFactory = _ => "prediction" };
+        var adaptive = new Option<bool>("--adaptive") { Description = "The configuration was chosen using earlier scores on this holdout." };
+        var guard = new Option<string?>("--guard") { Description = "Release the score through a guard: exact, rounded:D, ladder:STEP or thresholdout:T,SIGMA,BUDGET." };
+        var trainScore = new Option<string?>("--train-score") { Description = "The configuration's score on its training data (thresholdout compares against it)." };
+        var seed = new Option<int?>("--seed") { Description = "Seed for the guard's noise (thresholdout)." };
         var format = Common.Format("table", "json");
         Arguments.Add(name);
-        foreach (var option in new Option[] { configuration, predictions, score, search, stage, idColumn, predictionColumn, format }) Options.Add(option);
+        foreach (var option in new Option[] { configuration, predictions, score, search, stage, adaptive, guard, trainScore, seed, idColumn, predictionColumn, format }) Options.Add(option);
 
         SetAction(r => Common.Guard(env, () =>
         {
@@ -31,16 +36,9 @@ internal sealed class RecordCommand : Command
                 throw AccountantException.BadArguments("give exactly one of --predictions FILE (preferred: enables paired tests) and --score X.");
             }
 
-            double? value = null;
-            if (scoreText is not null)
-            {
-                if (!double.TryParse(scoreText, NumberStyles.Float, CultureInfo.InvariantCulture, out var parsed))
-                {
-                    throw AccountantException.BadInput($"--score '{scoreText}' is not a number; write it with a '.' decimal point, such as 0.125.");
-                }
-
-                value = parsed;
-            }
+            var value = scoreText is null ? (double?)null : Number(scoreText, "--score");
+            var train = r.GetValue(trainScore) is { } trainText ? Number(trainText, "--train-score") : (double?)null;
+            var spec = r.GetValue(guard) is { } guardText ? GuardSpec.Parse(guardText) : null;
 
             var input = new LookInput
             {
@@ -49,8 +47,12 @@ internal sealed class RecordCommand : Command
                 Predictions = predictionsPath is null ? null : InputFiles.Predictions(predictionsPath, r.GetValue(idColumn)!, r.GetValue(predictionColumn)!),
                 Search = r.GetValue(search),
                 Stage = r.GetValue(stage),
+                Adaptive = r.GetValue(adaptive),
+                Guard = spec,
+                TrainScore = train,
             };
             using var book = Bookkeeper.Open(Common.LedgerPath(r, env), env.Clock);
+            if (r.GetValue(seed) is { } s) book.GuardRandom = new Random(s);
             var holdout = book.Holdout(r.GetValue(name)!);
             var look = book.RecordMany(holdout.Name, [input])[0];
             if (r.GetValue(format) == "json")
@@ -61,14 +63,35 @@ internal sealed class RecordCommand : Command
                     w.WriteNumber("look", look.Number);
                     w.WriteNumber("observed", look.Score);
                     w.WriteBoolean("perExampleLosses", look.HasLosses);
+                    w.WriteBoolean("adaptive", look.Adaptive);
+                    if (look.Release is { } release)
+                    {
+                        w.WriteString("guard", release.Guard);
+                        if (release.Value is { } v) w.WriteNumber("released", v); else w.WriteNull("released");
+                        w.WriteBoolean("holdoutAnswered", release.HoldoutAnswered);
+                    }
                 }));
             }
             else
             {
-                env.Output.WriteLine($"look {look.Number} on holdout '{holdout.Name}': {holdout.Metric.Name()} {Text.N(look.Score)}{(look.HasLosses ? "" : " (score only)")}");
+                if (look.Release is { } release)
+                {
+                    // A guarded look tells the search only the released value; the score itself stays in the ledger.
+                    var told = release.Value is { } v ? Text.N(v) : "refused (the guard's budget is spent)";
+                    env.Output.WriteLine($"look {look.Number} on holdout '{holdout.Name}'{(look.Adaptive ? " (adaptive)" : "")}: released {told} by {release.Guard}");
+                }
+                else
+                {
+                    env.Output.WriteLine($"look {look.Number} on holdout '{holdout.Name}'{(look.Adaptive ? " (adaptive)" : "")}: {holdout.Metric.Name()} {Text.N(look.Score)}{(look.HasLosses ? "" : " (score only)")}");
+                }
             }
 
             return ExitCodes.Success;
         }));
     }
+
+    private static double Number(string text, string option) =>
+        double.TryParse(text, NumberStyles.Float, CultureInfo.InvariantCulture, out var value)
+            ? value
+            : throw AccountantException.BadInput($"{option} '{text}' is not a number; write it with a '.' decimal point, such as 0.125.");
 }

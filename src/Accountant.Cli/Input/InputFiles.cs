@@ -148,6 +148,34 @@ internal static class InputFiles
                     }
                 }
 
+                var adaptive = false;
+                if (root.TryGetProperty("adaptive", out var adaptiveValue))
+                {
+                    adaptive = adaptiveValue.ValueKind switch
+                    {
+                        JsonValueKind.True => true,
+                        JsonValueKind.False or JsonValueKind.Null => false,
+                        _ => throw AccountantException.BadInput($"{Where()} has an \"adaptive\" that is not true or false. Nothing was imported."),
+                    };
+                }
+
+                double? train = null;
+                if (root.TryGetProperty("trainScore", out var trainValue) && trainValue.ValueKind != JsonValueKind.Null)
+                {
+                    train = trainValue.ValueKind == JsonValueKind.Number && trainValue.TryGetDouble(out var t) ? t
+                        : throw AccountantException.BadInput($"{Where()} has a \"trainScore\" that is not a number. Nothing was imported.");
+                }
+
+                Guards.GuardSpec? guard;
+                try
+                {
+                    guard = OptionalString(root, "guard", Where) is { } g ? Guards.GuardSpec.Parse(g) : null;
+                }
+                catch (AccountantException e)
+                {
+                    throw AccountantException.BadInput($"{Where()}: {e.Message} Nothing was imported.");
+                }
+
                 looks.Add(new ImportedLook(new LookInput
                 {
                     Configuration = configuration.ValueKind == JsonValueKind.String ? configuration.GetString()! : configuration.GetRawText(),
@@ -155,6 +183,9 @@ internal static class InputFiles
                     Predictions = predicted,
                     Search = OptionalString(root, "search", Where) ?? search,
                     Stage = OptionalString(root, "stage", Where),
+                    Adaptive = adaptive,
+                    Guard = guard,
+                    TrainScore = train,
                 }, number));
             }
         }

@@ -23,6 +23,11 @@ public static class StatementWriter
 
     private static string Kind(BoundLine line) => line.Guarantee ? "guarantee" : "estimate";
 
+    /// <summary>M_eff for people: a count while it fits, else a power of ten.</summary>
+    private static string EffectiveText(Statement s) =>
+        s.LogEffectiveLooks < 30 ? Text.Count((long)Math.Round(Math.Exp(s.LogEffectiveLooks)))
+        : "10^" + (s.LogEffectiveLooks / Math.Log(10)).ToString("0.#", System.Globalization.CultureInfo.InvariantCulture);
+
     private static string Side(Statement s) => s.Options.Sided == Sidedness.OneSided ? "one-sided" : "two-sided";
 
     private static string BoundWord(Statement s) => s.Holdout.Metric.HigherIsBetter() ? "lower bound" : "upper bound";
@@ -33,20 +38,24 @@ public static class StatementWriter
         var h = s.Holdout;
         b.AppendLine($"Holdout      {h.Name}: {Text.Count(h.Size)} examples, metric {h.Metric.Name()}");
         b.AppendLine($"Looks        {Text.Count(s.Looks)} counted ({s.AdaptiveLooks} adaptive, {s.VoidedLooks} voided, {s.ScoreOnlyLooks} score-only)");
+        if (s.AdaptiveLooks > 0)
+        {
+            b.AppendLine($"Effective    ln M_eff = {Text.N(s.LogEffectiveLooks, 2)} (M_eff ≈ {EffectiveText(s)}): every look the guards' possible releases could have led to");
+        }
         if (s.Best is { } best)
         {
             b.AppendLine($"Best look    #{best.Number}: {h.Metric.Name()} {Text.N(best.Score)}  {Text.Short(best.Configuration, 90)}");
         }
 
-        b.AppendLine($"Confidence   {Text.Percent(s.Options.Confidence)} {Side(s)}, corrected for {Text.Count(s.Looks)} look(s)");
+        b.AppendLine($"Confidence   {Text.Percent(s.Options.Confidence)} {Side(s)}, corrected for {(s.AdaptiveLooks > 0 ? EffectiveText(s) + " effective" : Text.Count(s.Looks))} look(s)");
         if (s.Bounds.Count > 0)
         {
             b.AppendLine();
-            b.AppendLine($"  {"method",-18} {BoundWord(s),12} {"margin",8}  kind");
+            b.AppendLine($"  {"method",-26} {BoundWord(s),12} {"margin",8}  kind");
             foreach (var line in s.Bounds)
             {
                 var value = s.Options.Sided == Sidedness.TwoSided ? $"[{Text.N(line.Lower)}, {Text.N(line.Upper)}]" : Text.N(line.Bound);
-                b.AppendLine($"  {line.Method,-18} {value,12} {Text.N(line.Margin),8}  {Kind(line)}");
+                b.AppendLine($"  {line.Method,-26} {value,12} {Text.N(line.Margin),8}  {Kind(line)}{(line.Tightest ? ", tightest" : "")}");
             }
 
             b.AppendLine();
@@ -79,7 +88,8 @@ public static class StatementWriter
         var h = s.Holdout;
         b.AppendLine($"### Holdout `{h.Name}`");
         b.AppendLine();
-        b.AppendLine($"{Text.Count(h.Size)} examples, metric **{h.Metric.Name()}**, **{Text.Count(s.Looks)} looks** counted ({s.AdaptiveLooks} adaptive, {s.VoidedLooks} voided).");
+        b.AppendLine($"{Text.Count(h.Size)} examples, metric **{h.Metric.Name()}**, **{Text.Count(s.Looks)} looks** counted ({s.AdaptiveLooks} adaptive, {s.VoidedLooks} voided)" +
+            (s.AdaptiveLooks > 0 ? $"; adaptive accounting: ln M_eff = {Text.N(s.LogEffectiveLooks, 2)}." : "."));
         if (s.Best is { } best)
         {
             b.AppendLine($"Best look #{best.Number}: observed {h.Metric.Name()} **{Text.N(best.Score)}**, configuration `{best.Configuration.Replace("`", "'", StringComparison.Ordinal)}`.");
@@ -92,7 +102,8 @@ public static class StatementWriter
             b.AppendLine("|---|---:|---:|---|");
             foreach (var line in s.Bounds)
             {
-                b.AppendLine($"| {line.Method} | {Text.N(line.Bound)} | {Text.N(line.Margin)} | {Kind(line)} |");
+                var method = line.Tightest ? $"**{line.Method}**" : line.Method;
+                b.AppendLine($"| {method} | {Text.N(line.Bound)} | {Text.N(line.Margin)} | {Kind(line)}{(line.Tightest ? ", tightest" : "")} |");
             }
 
             b.AppendLine();
@@ -153,6 +164,8 @@ public static class StatementWriter
         w.WriteEndObject();
         w.WriteNumber("looks", s.Looks);
         w.WriteNumber("adaptiveLooks", s.AdaptiveLooks);
+        w.WriteNumber("logEffectiveLooks", s.LogEffectiveLooks);
+        if (double.IsFinite(s.EffectiveLooks)) w.WriteNumber("effectiveLooks", s.EffectiveLooks); else w.WriteNull("effectiveLooks");
         w.WriteNumber("voidedLooks", s.VoidedLooks);
         w.WriteNumber("scoreOnlyLooks", s.ScoreOnlyLooks);
         w.WriteNumber("confidence", s.Options.Confidence);
@@ -181,6 +194,7 @@ public static class StatementWriter
             w.WriteNumber("bound", line.Bound);
             w.WriteNumber("margin", line.Margin);
             w.WriteBoolean("guarantee", line.Guarantee);
+            w.WriteBoolean("tightest", line.Tightest);
             w.WriteNumber("lower", line.Lower);
             w.WriteNumber("upper", line.Upper);
             w.WriteString("reference", line.Reference);

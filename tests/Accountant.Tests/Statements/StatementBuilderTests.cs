@@ -97,3 +97,18 @@ public class StatementBuilderTests
         Assert.Equal(0.407, statement.Bounds[0].Upper, 3);
     }
 }
+
+public class AucStatementTests
+{
+    [Fact]
+    public void Auc_holdouts_report_the_auc_union_lower_bound()
+    {
+        var holdout = new Holdout(1, "ranked", 500, Metric.Auc, LossRange.Unit, "f", DateTimeOffset.UnixEpoch);
+        var looks = new List<Look> { new(1, 1, "{}", "d", 0.82, LossEncoding.Scores, null, null, false, DateTimeOffset.UnixEpoch) };
+        var statement = StatementBuilder.Build(holdout, looks, [], null, inputs: new StatementInputs(Positives: 100));
+        // Agarwal et al. 2005, one-sided: ε = sqrt((m+n)·ln(1/δ)/(2mn)) with m = 100, n = 400.
+        var margin = Math.Sqrt(500 * Math.Log(20) / (2.0 * 100 * 400));
+        Assert.Equal(AucUnion.Name, statement.Bounds[0].Method);
+        Assert.Equal(0.82 - margin, statement.Bounds[0].Bound, 12);
+    }
+}
