@@ -20,6 +20,7 @@ public static class AccountantCli
             new PlanCommand(env),
             new VoidCommand(env),
             new VerifyCommand(env),
+            new SimulateCommand(env),
             new DemoCommand(env),
         };
         root.Options.Add(Common.LedgerOption);

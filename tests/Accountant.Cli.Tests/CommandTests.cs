@@ -283,7 +283,7 @@ public sealed class CommandTests : IDisposable
         Assert.Equal(ExitCodes.Success, intro.Exit);
         Assert.Contains("accountant demo", intro.Out);
         Assert.Contains("accountant statement", intro.Out);
-        foreach (var verb in new[] { "init", "record", "import", "statement", "budget", "plan", "void", "verify", "demo" })
+        foreach (var verb in new[] { "init", "record", "import", "statement", "budget", "plan", "void", "verify", "simulate", "demo" })
         {
             Assert.Contains("Example: accountant " + verb, _cli.RunRaw([verb, "--help"]).Out);
         }
@@ -364,5 +364,38 @@ public sealed class AdaptiveCommandTests : IDisposable
         Assert.Equal(1 - Math.Sqrt(200 * Math.Log(20) / (2.0 * 50 * 150)), json.GetProperty("bounds")[0].GetProperty("bound").GetDouble(), 12);
         var bad = _cli.Write("bad-auc.csv", "id,label\na,1\nb,2\n");
         Assert.Equal(ExitCodes.BadInput, _cli.Run("holdout", "add", "bad", "--labels", bad, "--metric", "auc").Exit);
+    }
+}
+
+public sealed class SimulateCommandTests : IDisposable
+{
+    private readonly CliHarness _cli = new();
+
+    public void Dispose() => _cli.Dispose();
+
+    [Fact]
+    public void Simulate_reports_raw_and_per_method_coverage_in_json()
+    {
+        var result = _cli.Run("simulate", "--holdout-size", "500", "--looks", "50", "--true-error", "0.1:0.3", "--repetitions", "400", "--seed", "3", "--format", "json", "--no-ledger");
+        Assert.Equal(ExitCodes.Success, result.Exit);
+        var root = System.Text.Json.JsonDocument.Parse(result.Out).RootElement;
+        var raw = root.GetProperty("raw");
+        Assert.True(raw.GetProperty("meanObserved").GetDouble() < raw.GetProperty("meanTrue").GetDouble());
+        Assert.InRange(raw.GetProperty("coverage").GetDouble(), 0, 1);
+        var methods = root.GetProperty("methods").EnumerateArray().ToList();
+        Assert.Equal(["adaptive-transcript", "binomial-union", "kl-union", "hoeffding-union"], methods.Select(m => m.GetProperty("method").GetString()));
+        Assert.All(methods, m =>
+        {
+            Assert.InRange(m.GetProperty("coverage").GetDouble(), 0, 1);
+            Assert.True(m.GetProperty("coverageStdErr").GetDouble() >= 0);
+            Assert.True(m.GetProperty("meanMargin").GetDouble() > 0);
+        });
+        // Same seed, same numbers.
+        Assert.Equal(result.Out, _cli.Run("simulate", "--holdout-size", "500", "--looks", "50", "--true-error", "0.1:0.3", "--repetitions", "400", "--seed", "3", "--format", "json", "--no-ledger").Out);
+        var table = _cli.Run("simulate", "--strategy", "attack", "--holdout-size", "500", "--looks", "40", "--true-error", "0.5", "--repetitions", "200", "--no-ledger");
+        Assert.Contains("not valid for an adaptive analyst", table.Out);
+        Assert.Equal(ExitCodes.BadArguments, _cli.Run("simulate", "--true-error", "0.3:0.1", "--no-ledger").Exit);
+        Assert.Equal(ExitCodes.BadArguments, _cli.Run("simulate", "--correlation", "1", "--no-ledger").Exit);
+        Assert.Equal(ExitCodes.BadArguments, _cli.Run("simulate", "--guard", "ladder:2", "--no-ledger").Exit);
     }
 }

@@ -1,0 +1,418 @@
+using System.Numerics;
+using Accountant.Bounds;
+using Accountant.Guards;
+
+namespace Accountant.Simulation;
+
+/// <summary>How the simulated analyst chooses configurations.</summary>
+public enum AnalystStrategy
+{
+    /// <summary>Every configuration fixed in advance (non-adaptive).</summary>
+    Fixed,
+    /// <summary>A fifth of the looks at random points of a one-dimensional grid, then each next look at an unscored neighbour of the configuration with the best released value.</summary>
+    Refine,
+    /// <summary>
+    /// The classic attack on a reused holdout (Dwork et al. 2015, Science 349:636; Blum &amp; Hardt 2015): K − 1 random
+    /// classifiers, then their majority vote over those whose released value looked better than chance. Every configuration's
+    /// true error is 0.5; simulated example by example.
+    /// </summary>
+    Attack,
+}
+
+/// <summary>A Monte Carlo of searches with known truth.</summary>
+public sealed record SimulationOptions
+{
+    public int HoldoutSize { get; init; } = 1000;
+    public int Looks { get; init; } = 100;
+
+    /// <summary>The configurations' true errors: one value when Low = High, else a spread (uniform for fixed; a bowl for refine).</summary>
+    public double TrueErrorLow { get; init; } = 0.2;
+    public double TrueErrorHigh { get; init; } = 0.2;
+
+    /// <summary>The share of examples on which every configuration makes the same (shared) mistake or not, in [0, 0.99].</summary>
+    public double Correlation { get; init; }
+
+    public AnalystStrategy Strategy { get; init; } = AnalystStrategy.Fixed;
+    public GuardSpec Guard { get; init; } = GuardSpec.Exact;
+    public double Confidence { get; init; } = 0.95;
+    public int Repetitions { get; init; } = 1000;
+    public int Seed { get; init; } = 1;
+
+    public void Validate()
+    {
+        if (HoldoutSize < 10 || HoldoutSize > 10_000_000) throw AccountantException.BadArguments("--holdout-size must be between 10 and 10,000,000.");
+        if (Looks < 2 || Looks > 1_000_000) throw AccountantException.BadArguments("--looks must be between 2 and 1,000,000 for a simulation.");
+        if (!(TrueErrorLow >= 0 && TrueErrorHigh <= 1 && TrueErrorLow <= TrueErrorHigh)) throw AccountantException.BadArguments("--true-error must be a rate in [0, 1], or LO:HI with LO ≤ HI, such as 0.1:0.3.");
+        if (!(Correlation >= 0 && Correlation <= 0.99)) throw AccountantException.BadArguments("--correlation must lie in [0, 0.99].");
+        if (!(Confidence > 0 && Confidence < 1)) throw AccountantException.BadArguments("--confidence must lie strictly between 0 and 1, such as 0.95.");
+        if (Repetitions < 1 || Repetitions > 10_000_000) throw AccountantException.BadArguments("--repetitions must be between 1 and 10,000,000.");
+        if (Strategy == AnalystStrategy.Attack && (long)HoldoutSize * Looks > 200_000_000) throw AccountantException.BadArguments("the attack is simulated example by example; keep --holdout-size × --looks within 200,000,000.");
+    }
+}
+
+/// <summary>One method's record over the repetitions.</summary>
+/// <param name="Coverage">The fraction of repetitions where the bound was at least the selected configuration's true error.</param>
+/// <param name="CoverageStdErr">Its binomial standard error, sqrt(c(1 − c)/R).</param>
+/// <param name="MeanMargin">The mean of bound − observed best.</param>
+/// <param name="ValidHere">False for the plain union bounds when the analyst was adaptive: they are shown to see them fail.</param>
+public sealed record MethodCoverage(string Method, double Coverage, double CoverageStdErr, double MeanMargin, bool ValidHere);
+
+/// <summary>What the simulation measured.</summary>
+/// <param name="MeanObserved">The mean over repetitions of the selected look's validation error (the raw best).</param>
+/// <param name="MeanTrue">The mean true error of the selected configuration.</param>
+/// <param name="RawCoverage">How often the raw best was at least the true error.</param>
+/// <param name="LogEffectiveLooks">ln M_eff the adaptive accounting used.</param>
+public sealed record SimulationResult(SimulationOptions Options, double MeanObserved, double MeanTrue, double RawCoverage, double RawCoverageStdErr,
+    double LogEffectiveLooks, IReadOnlyList<MethodCoverage> Methods)
+{
+    public double Optimism => MeanTrue - MeanObserved;
+}
+
+/// <summary>
+/// Simulates searches on a holdout of n i.i.d. examples where every configuration's true error is known, selects the
+/// best look as the accountant does (the lowest validation error), and records how often each method's bound covers the
+/// selected configuration's true error.
+/// <para>
+/// Correlation ρ: a shared vector S of n mistakes (each example with probability p_min) and, for each configuration, every
+/// example copies S with probability ρ and otherwise errs independently with probability q, chosen so that the true error is
+/// ρ·p_min + (1 − ρ)·q. Error counts are then three binomial draws per look (copied mistakes, copied non-mistakes, the rest),
+/// exact and O(1); only the attack is simulated example by example, with bitsets.
+/// </para>
+/// </summary>
+public static class SearchSimulator
+{
+    public static readonly string[] Methods = [AdaptiveMethod, BinomialUnion.Name, KlUnion.Name, HoeffdingUnion.Name];
+
+    private const string AdaptiveMethod = "adaptive-transcript";
+
+    public static SimulationResult Run(SimulationOptions options, IProgress<int>? progress = null, CancellationToken cancel = default)
+    {
+        options.Validate();
+        var n = options.HoldoutSize;
+        var k = options.Looks;
+        var delta = 1 - options.Confidence;
+        var space = ValueSpace.ZeroOne(n);
+        var pattern = Pattern(options);
+        var logEffective = AdaptiveAccounting.LogEffectiveLooks(pattern, space);
+        var adaptiveAnalyst = options.Strategy != AnalystStrategy.Fixed;
+        var logK = Math.Log(k);
+
+        // Bounds depend on the selected error count only: compute each once per count, lazily.
+        var caches = new[]
+        {
+            new BoundCache(n, c => BinomialUnion.BoundLog(c, n, logEffective, delta).Upper),
+            new BoundCache(n, c => BinomialUnion.BoundLog(c, n, logK, delta).Upper),
+            new BoundCache(n, c => KlUnion.Bound(c / (double)n, n, logK, delta).Upper),
+            new BoundCache(n, c => Math.Min(1, c / (double)n + HoeffdingUnion.MarginLog(n, logK, delta))),
+        };
+
+        // Repetitions run in fixed chunks, each summed in order and the chunks added in order, so the result is the same
+        // to the last bit however the chunks are spread over threads.
+        const int chunk = 256;
+        var chunks = (options.Repetitions + chunk - 1) / chunk;
+        var partial = new Totals[chunks];
+        var done = 0;
+        Parallel.For(0, chunks, new ParallelOptions { CancellationToken = cancel, MaxDegreeOfParallelism = Environment.ProcessorCount }, c =>
+        {
+            var local = new Totals(caches.Length);
+            var bounds = new double[caches.Length];
+            for (var r = c * chunk; r < Math.Min(options.Repetitions, (c + 1) * chunk); r++)
+            {
+                var random = FastRandom.For(options.Seed, r);
+                var (count, truth) = options.Strategy switch
+                {
+                    AnalystStrategy.Attack => Attack(options, random, space),
+                    AnalystStrategy.Refine => Refine(options, random, space),
+                    _ => Fixed(options, random, space),
+                };
+                for (var i = 0; i < caches.Length; i++) bounds[i] = caches[i][count];
+                local.Add(count / (double)n, truth, bounds);
+            }
+
+            partial[c] = local;
+            progress?.Report(Interlocked.Add(ref done, Math.Min(chunk, options.Repetitions - c * chunk)));
+        });
+
+        var totals = new Totals(caches.Length);
+        foreach (var local in partial) totals.Merge(local);
+        var reps = (double)options.Repetitions;
+        double StdErr(double c) => Math.Sqrt(c * (1 - c) / reps);
+        var methods = Methods.Select((name, i) =>
+        {
+            var coverage = totals.Covered[i] / reps;
+            return new MethodCoverage(name, coverage, StdErr(coverage), totals.Margin[i] / reps, i == 0 || !adaptiveAnalyst);
+        }).ToList();
+        var raw = totals.RawCovered / reps;
+        return new SimulationResult(options, totals.Observed / reps, totals.True / reps, raw, StdErr(raw), logEffective, methods);
+    }
+
+    /// <summary>Which looks are adaptive, in order: the same in every repetition, so ln M_eff is computed once.</summary>
+    public static List<AccountedLook> Pattern(SimulationOptions options)
+    {
+        var fixedLooks = options.Strategy switch
+        {
+            AnalystStrategy.Fixed => options.Looks,
+            AnalystStrategy.Refine => RefineStart(options.Looks),
+            _ => options.Looks - 1,
+        };
+        return Enumerable.Range(0, options.Looks).Select(i => new AccountedLook(i >= fixedLooks, options.Guard)).ToList();
+    }
+
+    private static int RefineStart(int looks) => Math.Max(2, looks / 5);
+
+    private sealed class Totals(int methods)
+    {
+        public double Observed, True;
+        public long RawCovered;
+        public readonly long[] Covered = new long[methods];
+        public readonly double[] Margin = new double[methods];
+
+        public void Add(double observed, double truth, double[] bounds)
+        {
+            Observed += observed;
+            True += truth;
+            if (observed >= truth) RawCovered++;
+            for (var i = 0; i < bounds.Length; i++)
+            {
+                if (bounds[i] >= truth) Covered[i]++;
+                Margin[i] += bounds[i] - observed;
+            }
+        }
+
+        public void Merge(Totals other)
+        {
+            Observed += other.Observed;
+            True += other.True;
+            RawCovered += other.RawCovered;
+            for (var i = 0; i < Covered.Length; i++)
+            {
+                Covered[i] += other.Covered[i];
+                Margin[i] += other.Margin[i];
+            }
+        }
+    }
+
+    private sealed class BoundCache(int n, Func<int, double> compute)
+    {
+        private readonly double[] _values = Enumerable.Repeat(double.NaN, n + 1).ToArray();
+
+        public double this[int count]
+        {
+            get
+            {
+                var value = Volatile.Read(ref _values[count]);
+                if (double.IsNaN(value))
+                {
+                    value = compute(count);
+                    Volatile.Write(ref _values[count], value);
+                }
+
+                return value;
+            }
+        }
+    }
+
+    /// <summary>The shared part of the correlation model for one repetition.</summary>
+    private readonly record struct Shared(int Mistakes, double Rho, double Floor);
+
+    private static Shared DrawShared(SimulationOptions o, FastRandom random) =>
+        new(o.Correlation > 0 ? BinomialSampler.Sample(random, o.HoldoutSize, o.TrueErrorLow) : 0, o.Correlation, o.TrueErrorLow);
+
+    /// <summary>Draws one configuration's error count with true error <paramref name="p"/>; returns the count.</summary>
+    private static int Count(int n, double p, Shared shared, FastRandom random)
+    {
+        if (shared.Rho <= 0) return BinomialSampler.Sample(random, n, p);
+        var q = (p - shared.Rho * shared.Floor) / (1 - shared.Rho);
+        var copiedMistakes = BinomialSampler.Sample(random, shared.Mistakes, shared.Rho);
+        var copiedRest = BinomialSampler.Sample(random, n - shared.Mistakes, shared.Rho);
+        return copiedMistakes + BinomialSampler.Sample(random, n - copiedMistakes - copiedRest, q);
+    }
+
+    private static (int Count, double Truth) Fixed(SimulationOptions o, FastRandom random, ValueSpace space)
+    {
+        var shared = DrawShared(o, random);
+        var best = int.MaxValue;
+        var truth = 0.0;
+        for (var j = 0; j < o.Looks; j++)
+        {
+            var p = o.TrueErrorLow + (o.TrueErrorHigh - o.TrueErrorLow) * random.NextDouble();
+            var count = Count(o.HoldoutSize, p, shared, random);
+            if (count < best)
+            {
+                best = count;
+                truth = p;
+            }
+        }
+
+        return (best, truth);
+    }
+
+    private static (int Count, double Truth) Refine(SimulationOptions o, FastRandom random, ValueSpace space)
+    {
+        var n = o.HoldoutSize;
+        var shared = DrawShared(o, random);
+        var grid = 4 * o.Looks;
+        var center = random.Next(grid);
+        double TrueError(int x)
+        {
+            var d = 2.0 * Math.Abs(x - center) / grid;
+            return o.TrueErrorLow + (o.TrueErrorHigh - o.TrueErrorLow) * Math.Min(1.0, d * d * 4);
+        }
+
+        var scored = new HashSet<int>();
+        var guard = new GuardRunner(o.Guard, space, random);
+        int best = int.MaxValue, bestReleasedAt = -1;
+        double truth = 0, bestReleased = double.PositiveInfinity;
+        var start = RefineStart(o.Looks);
+        for (var j = 0; j < o.Looks; j++)
+        {
+            int x;
+            if (j < start || bestReleasedAt < 0)
+            {
+                do x = random.Next(grid); while (!scored.Add(x));
+            }
+            else
+            {
+                x = -1;
+                for (var attempt = 0; attempt < 12 && x < 0; attempt++)
+                {
+                    var candidate = Math.Clamp(bestReleasedAt + random.Next(-3, 4), 0, grid - 1);
+                    if (scored.Add(candidate)) x = candidate;
+                }
+
+                if (x < 0)
+                {
+                    do x = random.Next(grid); while (!scored.Add(x));
+                }
+            }
+
+            var p = TrueError(x);
+            var count = Count(n, p, shared, random);
+            var released = guard.Release(count / (double)n, BinomialSampler.Sample(random, n, p) / (double)n);
+            // The analyst moves toward the best value it was told; ties go to the latest.
+            if (released is { } value && value <= bestReleased)
+            {
+                bestReleased = value;
+                bestReleasedAt = x;
+            }
+
+            if (count < best)
+            {
+                best = count;
+                truth = p;
+            }
+        }
+
+        return (best, truth);
+    }
+
+    private static (int Count, double Truth) Attack(SimulationOptions o, FastRandom random, ValueSpace space)
+    {
+        var n = o.HoldoutSize;
+        var words = (n + 63) / 64;
+        var lastMask = n % 64 == 0 ? ulong.MaxValue : (1UL << (n % 64)) - 1;
+        var guard = new GuardRunner(o.Guard, space, random);
+        var loss = new ulong[words];
+        // Bit-sliced counters of how many kept classifiers err on each example.
+        var planes = new List<ulong[]>();
+        var kept = 0;
+        var best = int.MaxValue;
+        var lastTold = double.PositiveInfinity;
+        for (var j = 0; j < o.Looks - 1; j++)
+        {
+            var count = 0;
+            for (var w = 0; w < words; w++)
+            {
+                loss[w] = random.NextUInt64() & (w == words - 1 ? lastMask : ulong.MaxValue);
+                count += BitOperations.PopCount(loss[w]);
+            }
+
+            best = Math.Min(best, count);
+            var released = guard.Release(count / (double)n, BinomialSampler.Sample(random, n, 0.5) / (double)n);
+            // "Looked good": told a value better than chance; the Ladder repeats its last value, so there only a new best counts.
+            var good = released is { } value && value < 0.5 && (o.Guard.Kind != GuardKind.Ladder || value < lastTold);
+            if (released is { } told) lastTold = told;
+            if (!good) continue;
+            kept++;
+            AddToCounters(planes, loss, words);
+        }
+
+        // The final, adaptive look: the majority vote of the kept classifiers errs where more than half of them err. An even
+        // count gets one more vote from a fresh random classifier, which breaks ties the way a fixed tie rule would on
+        // labels independent of the features (a coin flip), without looking at the labels.
+        if (kept % 2 == 0)
+        {
+            AddToCounters(planes, RandomVector(random, words, lastMask), words);
+            kept++;
+        }
+
+        var majority = Majority(planes, kept, words, lastMask);
+        var final = majority.Sum(BitOperations.PopCount);
+        guard.Release(final / (double)n, 0.5);
+        return (Math.Min(best, final), 0.5);
+    }
+
+    private static ulong[] RandomVector(FastRandom random, int words, ulong lastMask)
+    {
+        var v = new ulong[words];
+        for (var w = 0; w < words; w++) v[w] = random.NextUInt64() & (w == words - 1 ? lastMask : ulong.MaxValue);
+        return v;
+    }
+
+    private static void AddToCounters(List<ulong[]> planes, ulong[] bits, int words)
+    {
+        var carry = (ulong[])bits.Clone();
+        for (var p = 0; ; p++)
+        {
+            if (p == planes.Count) planes.Add(new ulong[words]);
+            var plane = planes[p];
+            var any = 0UL;
+            for (var w = 0; w < words; w++)
+            {
+                var c = plane[w] & carry[w];
+                plane[w] ^= carry[w];
+                carry[w] = c;
+                any |= c;
+            }
+
+            if (any == 0) return;
+        }
+    }
+
+    /// <summary>Bits where the bit-sliced counter exceeds half of an odd number of votes.</summary>
+    private static ulong[] Majority(List<ulong[]> planes, int kept, int words, ulong lastMask)
+    {
+        var threshold = kept / 2; // err when count > threshold
+        var result = new ulong[words];
+        for (var w = 0; w < words; w++)
+        {
+            // Compare the counter (planes, LSB first) with the constant threshold, from the most significant bit down.
+            ulong greater = 0, equal = ulong.MaxValue;
+            for (var p = planes.Count - 1; p >= 0; p--)
+            {
+                var bit = planes[p][w];
+                var t = ((threshold >> p) & 1) == 1 ? ulong.MaxValue : 0UL;
+                greater |= equal & bit & ~t;
+                equal &= ~(bit ^ t);
+            }
+
+            result[w] = greater & (w == words - 1 ? lastMask : ulong.MaxValue);
+        }
+
+        return result;
+    }
+
+    /// <summary>A guard's stream within one simulated search.</summary>
+    private sealed class GuardRunner(GuardSpec spec, ValueSpace space, FastRandom random)
+    {
+        private GuardState _state = GuardState.Empty;
+        private readonly ThresholdoutNoise _noise = new();
+
+        public double? Release(double score, double trainScore)
+        {
+            var release = Guard.Apply(spec, _state, score, space, higherIsBetter: false, trainScore, random, _noise);
+            _state = new GuardState(_state.Releases + 1, _state.HoldoutAnswers + (release.HoldoutAnswered ? 1 : 0), release.Value ?? _state.LastReleased);
+            return release.Value;
+        }
+    }
+}
