@@ -37,22 +37,46 @@ public sealed class BinarySearchRunner(MLContext ml, IEstimator<ITransformer> fe
         IReadOnlyList<TrainerConfiguration> configurations,
         string search,
         IProgress<SearchProgress>? progress = null,
+        CancellationToken cancel = default) =>
+        Run(book, holdout, train, validation, validationIds, new FixedPlan(configurations), configurations.Count, search, null, progress, cancel);
+
+    private sealed class FixedPlan(IReadOnlyList<TrainerConfiguration> plan) : ISearchStrategy
+    {
+        public (TrainerConfiguration, bool) Next(int index, IReadOnlyList<ToldLook> history) => (plan[index], false);
+    }
+
+    /// <summary>
+    /// Runs <paramref name="looks"/> looks chosen by <paramref name="strategy"/>. With a <paramref name="guard"/>, every score
+    /// is released through it and the strategy is told only the released value; without one it is told the score.
+    /// </summary>
+    public SearchOutcome Run(
+        Bookkeeper book,
+        Holdout holdout,
+        IDataView train,
+        IDataView validation,
+        IReadOnlyList<string> validationIds,
+        ISearchStrategy strategy,
+        int looks,
+        string search,
+        Guards.GuardSpec? guard,
+        IProgress<SearchProgress>? progress = null,
         CancellationToken cancel = default)
     {
+        var told = new List<ToldLook>();
         var clock = Stopwatch.StartNew();
-        var looks = new List<ScoredConfiguration>();
+        var scoredLooks = new List<ScoredConfiguration>();
         ScoredConfiguration? best = null;
         ITransformer? bestModel = null;
         var featurizer = featurize.Fit(train);
         var trainFeatures = featurizer.Transform(train);
         var validationFeatures = featurizer.Transform(validation);
-        for (var i = 0; i < configurations.Count; i++)
+        for (var i = 0; i < looks; i++)
         {
-            var configuration = configurations[i];
-            progress?.Report(new SearchProgress(i, configurations.Count, best?.Look.Score, clock.Elapsed, configuration.Trainer));
+            var (configuration, adaptive) = strategy.Next(i, told);
+            progress?.Report(new SearchProgress(i, looks, best?.Look.Score, clock.Elapsed, configuration.Trainer));
             if (cancel.IsCancellationRequested)
             {
-                return new SearchOutcome(looks, best, bestModel, Cancelled: true);
+                return new SearchOutcome(scoredLooks, best, bestModel, Cancelled: true);
             }
 
             var started = clock.Elapsed;
@@ -61,12 +85,24 @@ public sealed class BinarySearchRunner(MLContext ml, IEstimator<ITransformer> fe
                 .Select((row, j) => new Prediction(validationIds[j], LabelText(row.PredictedLabel)))
                 .ToList();
             var seconds = (clock.Elapsed - started).TotalSeconds;
+            double? trainScore = null;
+            if (guard?.Kind == Guards.GuardKind.Thresholdout)
+            {
+                trainScore = Error(model, trainFeatures, out _);
+                if (holdout.Metric == Metric.Accuracy) trainScore = 1 - trainScore;
+            }
+
             var look = book.RecordMany(holdout.Name,
             [
-                new LookInput { Configuration = configuration.ToJson(), Predictions = predicted, Search = search, Seconds = Math.Round(seconds, 3) },
+                new LookInput
+                {
+                    Configuration = configuration.ToJson(), Predictions = predicted, Search = search, Seconds = Math.Round(seconds, 3),
+                    Adaptive = adaptive, Guard = guard, TrainScore = trainScore,
+                },
             ])[0];
+            told.Add(new ToldLook(configuration, look.Release is { } r ? r.Value : look.Score));
             var scored = new ScoredConfiguration(look, configuration, seconds);
-            looks.Add(scored);
+            scoredLooks.Add(scored);
             if (best is null || (holdout.Metric.HigherIsBetter() ? look.Score > best.Look.Score : look.Score < best.Look.Score))
             {
                 best = scored;
@@ -74,8 +110,8 @@ public sealed class BinarySearchRunner(MLContext ml, IEstimator<ITransformer> fe
             }
         }
 
-        progress?.Report(new SearchProgress(configurations.Count, configurations.Count, best?.Look.Score, clock.Elapsed, "done"));
-        return new SearchOutcome(looks, best, bestModel, Cancelled: false);
+        progress?.Report(new SearchProgress(looks, looks, best?.Look.Score, clock.Elapsed, "done"));
+        return new SearchOutcome(scoredLooks, best, bestModel, Cancelled: false);
     }
 
     private ITransformer Fit(TrainerConfiguration configuration, IDataView features)

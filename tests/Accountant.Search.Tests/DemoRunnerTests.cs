@@ -109,3 +109,52 @@ public sealed class DemoRunnerTests : IDisposable
         }
     }
 }
+
+public sealed class RefineStrategyTests : IDisposable
+{
+    private readonly string _folder = Path.Combine(Path.GetTempPath(), "accountant-refine-" + Guid.NewGuid().ToString("N"));
+
+    public RefineStrategyTests() => Directory.CreateDirectory(_folder);
+
+    public void Dispose()
+    {
+        try { Directory.Delete(_folder, true); } catch (IOException) { }
+    }
+
+    [Fact]
+    public void Refine_records_its_later_looks_as_adaptive_and_the_statement_counts_the_guards_transcripts()
+    {
+        using var book = Bookkeeper.Create(Path.Combine(_folder, "refine.db"));
+        var options = new DemoOptions { Looks = 8, TrainingRows = 300, ValidationRows = 300, FreshRows = 2000, Strategy = "refine", Guard = Guards.GuardSpec.Ladder(0.02) };
+        var outcome = DemoRunner.Run(book, options);
+        var looks = book.Store.Looks(book.Holdout(options.HoldoutName));
+        // The first max(5 trainers, 8/5) looks are fixed; the rest nudge the best told configuration.
+        Assert.Equal(Enumerable.Range(0, 8).Select(i => i >= 5), looks.Select(l => l.Adaptive));
+        Assert.All(looks, l => Assert.Equal("ladder:0.02", l.Release!.Guard));
+        Assert.Equal("adaptive-transcript", outcome.Statement.Primary!.Method);
+        var expected = Accountant.Guards.AdaptiveAccounting.LogEffectiveLooks(
+            looks.Select(l => new Accountant.Guards.AccountedLook(l.Adaptive, Accountant.Guards.GuardSpec.Ladder(0.02))).ToList(),
+            Accountant.Guards.ValueSpace.ZeroOne(300));
+        Assert.Equal(expected, outcome.Statement.LogEffectiveLooks, 12);
+    }
+
+    [Fact]
+    public void Neighbours_stay_in_range_and_on_the_same_trainer()
+    {
+        var random = new Random(4);
+        foreach (var space in BinaryTrainers.DefaultSpace)
+        {
+            var configuration = space.Sample(random);
+            for (var i = 0; i < 200; i++)
+            {
+                configuration = space.Neighbour(configuration, random);
+                Assert.Equal(space.Trainer, configuration.Trainer);
+                foreach (var range in space.Parameters)
+                {
+                    Assert.InRange(configuration.Values[range.Name], range.Low, range.High);
+                    if (range.IsWhole) Assert.Equal(Math.Floor(configuration.Values[range.Name]), configuration.Values[range.Name]);
+                }
+            }
+        }
+    }
+}

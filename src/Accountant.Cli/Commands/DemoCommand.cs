@@ -21,8 +21,11 @@ internal sealed class DemoCommand : Command
         var tolerance = Common.Tolerance(0.05);
         var twoSided = Common.TwoSided();
         var quiet = new Option<bool>("--quiet") { Description = "No progress bar." };
+        var strategy = new Option<string>("--strategy") { Description = "random (configurations fixed in advance) or refine (adaptive: local search around the best value told).", DefaultValueFactory = _ => "random" };
+        strategy.AcceptOnlyFromAmong("random", "refine");
+        var guard = new Option<string?>("--guard") { Description = "Release scores to the search through a guard: exact, rounded:D, ladder:STEP or thresholdout:T,SIGMA,BUDGET." };
         var format = Common.Format("table", "json", "markdown");
-        foreach (var option in new Option[] { looks, seed, trainingRows, validationRows, freshRows, confidence, tolerance, twoSided, quiet, format }) Options.Add(option);
+        foreach (var option in new Option[] { looks, seed, strategy, guard, trainingRows, validationRows, freshRows, confidence, tolerance, twoSided, quiet, format }) Options.Add(option);
 
         SetAction(r => Common.Guard(env, () =>
         {
@@ -33,6 +36,8 @@ internal sealed class DemoCommand : Command
                 TrainingRows = r.GetValue(trainingRows),
                 ValidationRows = r.GetValue(validationRows),
                 FreshRows = r.GetValue(freshRows),
+                Strategy = r.GetValue(strategy)!,
+                Guard = r.GetValue(guard) is { } g ? Guards.GuardSpec.Parse(g) : null,
                 Statement = Common.StatementOptions(r, confidence, tolerance, twoSided),
             };
             var path = r.GetValue(Common.LedgerOption) is { Length: > 0 } given
@@ -43,7 +48,9 @@ internal sealed class DemoCommand : Command
             if (text == "table")
             {
                 env.Output.WriteLine($"Bakery demo: will a day's sourdough batch sell out? (an invented scenario with a known rule; data made by code)");
-                env.Output.WriteLine($"Random search over {options.Looks} configurations of {string.Join(", ", BinaryTrainers.DefaultSpace.Take(Math.Min(options.Looks, BinaryTrainers.DefaultSpace.Count)).Select(s => s.Trainer))}");
+                var how = options.Strategy == "refine" ? "Refining search (adaptive)" : "Random search";
+                var told = options.Guard is { } shown ? $", scores released through {shown}" : "";
+                env.Output.WriteLine($"{how} over {options.Looks} configurations of {string.Join(", ", BinaryTrainers.DefaultSpace.Take(Math.Min(options.Looks, BinaryTrainers.DefaultSpace.Count)).Select(s => s.Trainer))}{told}");
                 env.Output.WriteLine($"trained on {Text.Count(options.TrainingRows)} days, every look scored on the same {Text.Count(options.ValidationRows)} validation days; ledger {path}");
                 env.Output.WriteLine();
                 env.Output.Flush();

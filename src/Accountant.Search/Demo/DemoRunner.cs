@@ -14,6 +14,12 @@ public sealed record DemoOptions
     public int FreshRows { get; init; } = 100_000;
     public int Seed { get; init; } = 2026;
     public string HoldoutName { get; init; } = "bakery-validation";
+
+    /// <summary>"random" (non-adaptive) or "refine" (adaptive: local search around the best value told).</summary>
+    public string Strategy { get; init; } = "random";
+
+    /// <summary>The guard scores are released through; null tells the search the exact score.</summary>
+    public Guards.GuardSpec? Guard { get; init; }
     public StatementOptions Statement { get; init; } = new();
 }
 
@@ -54,10 +60,15 @@ public static class DemoRunner
         var holdout = book.EnsureHoldout(options.HoldoutName,
             validation.Select(d => new HoldoutExample(d.Id, BinarySearchRunner.LabelText(d.Label))).ToList());
 
-        var configurations = BinaryTrainers.RandomConfigurations(BinaryTrainers.DefaultSpace, options.Looks, options.Seed);
+        ISearchStrategy strategy = options.Strategy switch
+        {
+            "random" => new RandomStrategy(BinaryTrainers.DefaultSpace, options.Looks, options.Seed),
+            "refine" => new RefineStrategy(BinaryTrainers.DefaultSpace, options.Looks, options.Seed),
+            _ => throw AccountantException.BadArguments($"unknown strategy '{options.Strategy}'; use random or refine."),
+        };
         var runner = new BinarySearchRunner(ml, Featurizer(ml));
         var search = runner.Run(book, holdout, ml.Data.LoadFromEnumerable(training), ml.Data.LoadFromEnumerable(validation),
-            validation.Select(d => d.Id).ToList(), configurations, $"demo-random-seed{options.Seed}", progress, cancel);
+            validation.Select(d => d.Id).ToList(), strategy, options.Looks, $"demo-{options.Strategy}-seed{options.Seed}", options.Guard, progress, cancel);
 
         double trueError = double.NaN, stdErr = double.NaN, bayes = double.NaN;
         long rows = 0;

@@ -35,6 +35,25 @@ public sealed record ParameterRange(string Name, double Low, double High, Parame
 
     public bool IsWhole => Scale is ParameterScale.Integer or ParameterScale.LogInteger;
 
+    private bool IsLog => Scale is ParameterScale.LogUniform or ParameterScale.LogInteger;
+
+    /// <summary>
+    /// A value near <paramref name="value"/>: a uniform step of at most <paramref name="fraction"/> of the range, measured on
+    /// the range's own scale (log for log ranges), clamped into the range. Whole-number ranges always move by at least one
+    /// when they can.
+    /// </summary>
+    public double Perturb(double value, Random random, double fraction)
+    {
+        double To(double x) => IsLog ? Math.Log(x) : x;
+        double From(double x) => IsLog ? Math.Exp(x) : x;
+        var span = To(High) - To(Low);
+        var moved = From(Math.Clamp(To(value) + (2 * random.NextDouble() - 1) * fraction * span, To(Low), To(High)));
+        if (!IsWhole) return Math.Clamp(RoundSignificant(moved), Low, High);
+        var whole = Math.Clamp(Math.Round(moved), Low, High);
+        if (whole == value && High > Low) whole = Math.Clamp(value + (random.NextDouble() < 0.5 ? -1 : 1), Low, High);
+        return whole;
+    }
+
     private static double RoundSignificant(double value) =>
         value == 0 ? 0 : Math.Round(value, Math.Max(0, 3 - (int)Math.Floor(Math.Log10(Math.Abs(value)))));
 }
@@ -44,6 +63,10 @@ public sealed record TrainerSpace(string Trainer, IReadOnlyList<ParameterRange> 
 {
     public TrainerConfiguration Sample(Random random) =>
         new(Trainer, Parameters.ToDictionary(p => p.Name, p => p.Sample(random)));
+
+    /// <summary>A neighbour of a configuration of this trainer: every hyperparameter nudged (see <see cref="ParameterRange.Perturb"/>).</summary>
+    public TrainerConfiguration Neighbour(TrainerConfiguration configuration, Random random, double fraction = 0.15) =>
+        new(Trainer, Parameters.ToDictionary(p => p.Name, p => p.Perturb(configuration.Values[p.Name], random, fraction)));
 }
 
 /// <summary>A trainer with one value per hyperparameter: what one look scores.</summary>

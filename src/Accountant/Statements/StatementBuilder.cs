@@ -217,7 +217,8 @@ public static class StatementBuilder
         if (budget.Overused)
         {
             var margin = bounds.Count > 0 ? $" the margin is now {F(bounds[0].Margin)}," : "";
-            var counted = adaptive > 0 ? $"{budget.LooksUsed} effective looks (from {looks.Count} recorded, {adaptive} adaptive)" : $"{looks.Count} looks";
+            var effective = logLooks < 30 ? Math.Round(Math.Exp(logLooks)).ToString("0", CultureInfo.InvariantCulture) : "10^" + (logLooks / Math.Log(10)).ToString("0.#", CultureInfo.InvariantCulture);
+            var counted = adaptive > 0 ? $"{effective} effective looks (from {looks.Count} recorded, {adaptive} adaptive)" : $"{looks.Count} looks";
             warnings.Add(budget.MaxLooks == 0
                 ? new("holdout-overused", $"even a single look's margin exceeds the tolerance {F(options.Tolerance)} at confidence {F(options.Confidence)} on {holdout.Size} examples:{margin} so this holdout is too small to tell configurations apart to that tolerance; 'accountant plan' gives the size needed.")
                 : new("holdout-overused", $"{counted} exceed the budget of {budget.MaxLooks} at tolerance {F(options.Tolerance)} and confidence {F(options.Confidence)}:{margin} so this holdout can no longer tell configurations apart to that tolerance; collect fresh validation data for further comparisons."));

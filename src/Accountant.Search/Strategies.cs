@@ -1,0 +1,58 @@
+using Accountant.Search.Trainers;
+
+namespace Accountant.Search;
+
+/// <summary>What a strategy may know of a finished look: its configuration and the value the guard told (never the score itself).</summary>
+public sealed record ToldLook(TrainerConfiguration Configuration, double? Told);
+
+/// <summary>Chooses configurations. A strategy sees only released values, so its adaptive looks are what the accounting counts.</summary>
+public interface ISearchStrategy
+{
+    /// <summary>The next configuration, and whether it was chosen using earlier released values (adaptive).</summary>
+    (TrainerConfiguration Configuration, bool Adaptive) Next(int index, IReadOnlyList<ToldLook> history);
+}
+
+/// <summary>Random search: every configuration drawn in advance (non-adaptive); trainers in turn.</summary>
+public sealed class RandomStrategy(IReadOnlyList<TrainerSpace> space, int looks, int seed) : ISearchStrategy
+{
+    private readonly List<TrainerConfiguration> _plan = BinaryTrainers.RandomConfigurations(space, looks, seed);
+
+    public (TrainerConfiguration, bool) Next(int index, IReadOnlyList<ToldLook> history) => (_plan[index], false);
+}
+
+/// <summary>
+/// Local refinement: the first looks (a fifth, at least one per trainer) are random and fixed in advance; each later look
+/// nudges every hyperparameter of the configuration with the best value told so far (the latest on ties). Lower told
+/// values are better unless <paramref name="higherIsBetter"/>.
+/// </summary>
+public sealed class RefineStrategy(IReadOnlyList<TrainerSpace> space, int looks, int seed, bool higherIsBetter = false) : ISearchStrategy
+{
+    private readonly Random _random = new(seed);
+    private readonly List<TrainerConfiguration> _start = BinaryTrainers.RandomConfigurations(space, Math.Max(space.Count, looks / 5), seed);
+
+    public int FixedLooks => _start.Count;
+
+    public (TrainerConfiguration, bool) Next(int index, IReadOnlyList<ToldLook> history)
+    {
+        if (index < _start.Count)
+        {
+            return (_start[index], false);
+        }
+
+        ToldLook? best = null;
+        foreach (var look in history)
+        {
+            if (look.Told is not { } told) continue;
+            if (best is null || (higherIsBetter ? told >= best.Told : told <= best.Told)) best = look;
+        }
+
+        if (best is null)
+        {
+            // Nothing was told (a guard refused everything): fall back to a fresh random configuration, still adaptive.
+            return (space[_random.Next(space.Count)].Sample(_random), true);
+        }
+
+        var trainer = space.Single(s => s.Trainer == best.Configuration.Trainer);
+        return (trainer.Neighbour(best.Configuration, _random), true);
+    }
+}
