@@ -20,6 +20,9 @@ public static class AccountantCli
             new PlanCommand(env),
             new VoidCommand(env),
             new VerifyCommand(env),
+            new SearchCommand(env),
+            new UnsealCommand(env),
+            new PlotCommand(env),
             new SimulateCommand(env),
             new DemoCommand(env),
         };

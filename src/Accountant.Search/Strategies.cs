@@ -56,3 +56,47 @@ public sealed class RefineStrategy(IReadOnlyList<TrainerSpace> space, int looks,
         return (trainer.Neighbour(best.Configuration, _random), true);
     }
 }
+
+/// <summary>
+/// Grid search: for each trainer, an even grid over each hyperparameter's range (on its own scale), as many points per
+/// hyperparameter as keep the trainer's share of the looks, taken in order; non-adaptive.
+/// </summary>
+public sealed class GridStrategy : ISearchStrategy
+{
+    private readonly List<TrainerConfiguration> _plan = [];
+
+    public GridStrategy(IReadOnlyList<TrainerSpace> space, int looks)
+    {
+        var perTrainer = Enumerable.Range(0, space.Count).Select(t => looks / space.Count + (t < looks % space.Count ? 1 : 0)).ToList();
+        var grids = space.Select((s, t) => Grid(s, perTrainer[t])).ToList();
+        // Interleave the trainers so that a stopped search has tried each of them.
+        for (var i = 0; _plan.Count < looks && grids.Any(g => i < g.Count); i++)
+        {
+            foreach (var g in grids.Where(g => i < g.Count)) if (_plan.Count < looks) _plan.Add(g[i]);
+        }
+    }
+
+    public int Count => _plan.Count;
+
+    private static List<TrainerConfiguration> Grid(TrainerSpace space, int budget)
+    {
+        if (budget <= 0) return [];
+        var d = space.Parameters.Count;
+        var points = Math.Max(1, (int)Math.Floor(Math.Pow(budget, 1.0 / Math.Max(1, d)) + 1e-9));
+        var axes = space.Parameters.Select(p => p.GridValues(points)).ToList();
+        var all = new List<TrainerConfiguration>();
+        var index = new int[d];
+        while (true)
+        {
+            all.Add(new TrainerConfiguration(space.Trainer, space.Parameters.Select((p, i) => (p.Name, axes[i][index[i]])).ToDictionary(x => x.Name, x => x.Item2)));
+            var k = d - 1;
+            while (k >= 0 && ++index[k] == axes[k].Count) index[k--] = 0;
+            if (k < 0) break;
+        }
+
+        // Spread the budget evenly through the product when it has more points than the budget.
+        return all.Count <= budget ? all : Enumerable.Range(0, budget).Select(i => all[(int)((long)i * all.Count / budget)]).ToList();
+    }
+
+    public (TrainerConfiguration, bool) Next(int index, IReadOnlyList<ToldLook> history) => (_plan[index], false);
+}

@@ -280,6 +280,17 @@ public sealed class Bookkeeper : IDisposable
         }
     }
 
+    /// <summary>Records an opening of the holdout's sealed test set for one look's configuration. Every opening is kept and counted.</summary>
+    public TestOpening RecordOpening(string holdoutName, int lookNumber, int testSize, string testFingerprint, double testScore)
+    {
+        if (!double.IsFinite(testScore))
+        {
+            throw AccountantException.BadInput("the test score is not a finite number; nothing was recorded.");
+        }
+
+        return Store.AppendOpening(Holdout(holdoutName), lookNumber, testSize, testFingerprint, testScore);
+    }
+
     /// <summary>Marks a look as a mistake. It cannot be selected any more, and it still counts.</summary>
     public LookVoid Void(string holdoutName, int lookNumber, string reason)
     {
@@ -294,9 +305,14 @@ public sealed class Bookkeeper : IDisposable
     public Statement Statement(string holdoutName, StatementOptions? options = null)
     {
         var holdout = Holdout(holdoutName);
+        return StatementBuilder.Build(holdout, Store.Looks(holdout), Store.Voids(holdout), Store.ChainHead(), options, Inputs(holdout));
+    }
+
+    /// <summary>What a statement on this holdout needs beyond its looks: the AUC's positives, per-example losses on demand, the openings.</summary>
+    public StatementInputs Inputs(Holdout holdout)
+    {
         long? positives = holdout.Metric == Metric.Auc ? Store.Examples(holdout).Count(e => e.Label == Losses.PositiveLabel) : null;
-        var inputs = new StatementInputs(positives is { } p ? ValueSpace.Auc(p, holdout.Size - p) : null, positives, look => Store.LossBytes(holdout, look.Number));
-        return StatementBuilder.Build(holdout, Store.Looks(holdout), Store.Voids(holdout), Store.ChainHead(), options, inputs);
+        return new StatementInputs(positives is { } p ? ValueSpace.Auc(p, holdout.Size - p) : null, positives, look => Store.LossBytes(holdout, look.Number), Store.Openings(holdout));
     }
 
     public ChainReport Verify(string? expectedHead = null) => Store.Verify(expectedHead);

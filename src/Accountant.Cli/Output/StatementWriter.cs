@@ -168,6 +168,7 @@ public static class StatementWriter
         if (double.IsFinite(s.EffectiveLooks)) w.WriteNumber("effectiveLooks", s.EffectiveLooks); else w.WriteNull("effectiveLooks");
         w.WriteNumber("voidedLooks", s.VoidedLooks);
         w.WriteNumber("scoreOnlyLooks", s.ScoreOnlyLooks);
+        w.WriteNumber("testOpenings", s.TestOpenings);
         w.WriteNumber("confidence", s.Options.Confidence);
         w.WriteString("sided", Side(s));
         if (s.Best is { } best)

@@ -14,17 +14,23 @@ public enum ParameterScale
     Integer,
     /// <summary>A whole number, log-uniform on [Low, High]: for counts spanning decades.</summary>
     LogInteger,
+    /// <summary>One of a list of values, each equally likely.</summary>
+    Choice,
 }
 
 /// <summary>One hyperparameter's range.</summary>
-public sealed record ParameterRange(string Name, double Low, double High, ParameterScale Scale)
+public sealed record ParameterRange(string Name, double Low, double High, ParameterScale Scale, IReadOnlyList<double>? Choices = null)
 {
+    public static ParameterRange Choice(string name, IReadOnlyList<double> values) =>
+        values.Count == 0 ? throw AccountantException.BadInput($"the choice for '{name}' lists no values.") : new(name, values.Min(), values.Max(), ParameterScale.Choice, values);
+
     /// <summary>Draws a value. Continuous values keep four significant digits, so the configuration recorded is the one trained.</summary>
     public double Sample(Random random)
     {
         var u = random.NextDouble();
         return Scale switch
         {
+            ParameterScale.Choice => Choices![Math.Min(Choices.Count - 1, (int)(u * Choices.Count))],
             ParameterScale.Uniform => RoundSignificant(Low + u * (High - Low)),
             ParameterScale.LogUniform => RoundSignificant(Math.Exp(Math.Log(Low) + u * (Math.Log(High) - Math.Log(Low)))),
             ParameterScale.Integer => Math.Floor(Low + u * (High - Low + 1)),
@@ -33,7 +39,21 @@ public sealed record ParameterRange(string Name, double Low, double High, Parame
         };
     }
 
-    public bool IsWhole => Scale is ParameterScale.Integer or ParameterScale.LogInteger;
+    public bool IsWhole => Scale is ParameterScale.Integer or ParameterScale.LogInteger || (Scale == ParameterScale.Choice && Choices!.All(c => c == Math.Floor(c)));
+
+    /// <summary>Evenly spread values for a grid: <paramref name="points"/> of them on the range's own scale (all choices for a choice).</summary>
+    public IReadOnlyList<double> GridValues(int points)
+    {
+        if (Scale == ParameterScale.Choice) return Choices!;
+        if (points <= 1) return [IsWhole ? Math.Round(From(0.5 * (To(Low) + To(High)))) : RoundSignificant(From(0.5 * (To(Low) + To(High))))];
+        var values = Enumerable.Range(0, points).Select(i => From(To(Low) + i * (To(High) - To(Low)) / (points - 1)))
+            .Select(v => IsWhole ? Math.Round(v) : RoundSignificant(v)).Distinct().ToList();
+        return values;
+    }
+
+    private double To(double x) => IsLog ? Math.Log(x) : x;
+
+    private double From(double x) => IsLog ? Math.Exp(x) : x;
 
     private bool IsLog => Scale is ParameterScale.LogUniform or ParameterScale.LogInteger;
 
@@ -44,8 +64,13 @@ public sealed record ParameterRange(string Name, double Low, double High, Parame
     /// </summary>
     public double Perturb(double value, Random random, double fraction)
     {
-        double To(double x) => IsLog ? Math.Log(x) : x;
-        double From(double x) => IsLog ? Math.Exp(x) : x;
+        if (Scale == ParameterScale.Choice)
+        {
+            var choices = Choices!;
+            var at = Math.Max(0, choices.ToList().IndexOf(value));
+            return choices[Math.Clamp(at + (random.NextDouble() < 0.5 ? -1 : 1), 0, choices.Count - 1)];
+        }
+
         var span = To(High) - To(Low);
         var moved = From(Math.Clamp(To(value) + (2 * random.NextDouble() - 1) * fraction * span, To(Low), To(High)));
         if (!IsWhole) return Math.Clamp(RoundSignificant(moved), Low, High);

@@ -73,6 +73,18 @@ public static class Chain
         }
     });
 
+    public static byte[] OpeningEntry(long sequence, string holdoutFingerprint, int lookNumber, int testSize, string testFingerprint, double testScore, string recordedAt) => Write(w =>
+    {
+        w.WriteString("kind", "opening");
+        w.WriteNumber("seq", sequence);
+        w.WriteString("holdout", holdoutFingerprint);
+        w.WriteNumber("look", lookNumber);
+        w.WriteNumber("testSize", testSize);
+        w.WriteString("testFingerprint", testFingerprint);
+        w.WriteString("testScore", Number(testScore));
+        w.WriteString("recordedAt", recordedAt);
+    });
+
     public static byte[] VoidEntry(long sequence, string holdoutFingerprint, int lookNumber, string reason, string recordedAt) => Write(w =>
     {
         w.WriteString("kind", "void");

@@ -27,6 +27,11 @@ public interface ILedgerStore : IDisposable
 
     LookVoid AppendVoid(Holdout holdout, int lookNumber, string reason);
 
+    /// <summary>Records that the sealed test set was opened for a look's configuration.</summary>
+    TestOpening AppendOpening(Holdout holdout, int lookNumber, int testSize, string testFingerprint, double testScore);
+
+    IReadOnlyList<TestOpening> Openings(Holdout holdout);
+
     /// <summary>The holdout's looks in number order, without their per-example losses.</summary>
     IReadOnlyList<Look> Looks(Holdout holdout);
 

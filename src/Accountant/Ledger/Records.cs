@@ -65,6 +65,9 @@ public sealed record Look(
     public bool HasLosses => LossEncoding != LossEncoding.None;
 }
 
+/// <summary>An opening of a sealed test set: which look's configuration was scored on it, and how it did.</summary>
+public sealed record TestOpening(long Sequence, int LookNumber, int TestSize, string TestFingerprint, double TestScore, DateTimeOffset RecordedAt);
+
 /// <summary>A void: marks a look as a mistake. The look still counts.</summary>
 public sealed record LookVoid(long Sequence, int LookNumber, string Reason, DateTimeOffset RecordedAt);
 

@@ -27,7 +27,8 @@ internal sealed class SqliteChainVerifier(SqliteConnection connection)
         using var holdout = Command("SELECT id, name, size, metric, loss_low, loss_high, fingerprint, ids, labels, created_at FROM holdouts WHERE seq = $seq;");
         using var look = Command("SELECT holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at, guard, released, holdout_answered, train_score FROM looks WHERE seq = $seq;");
         using var @void = Command("SELECT holdout_id, look_number, reason, recorded_at FROM voids WHERE seq = $seq;");
-        foreach (var command in new[] { holdout, look, @void })
+        using var opening = Command("SELECT holdout_id, look_number, test_size, test_fingerprint, test_score, recorded_at FROM openings WHERE seq = $seq;");
+        foreach (var command in new[] { holdout, look, @void, opening })
         {
             command.Parameters.Add("$seq", SqliteType.Integer);
         }
@@ -58,6 +59,7 @@ internal sealed class SqliteChainVerifier(SqliteConnection connection)
                     "holdout" => Holdout(holdout, sequence, holdouts),
                     "look" => Look(look, sequence, holdouts),
                     "void" => Void(@void, sequence, holdouts),
+                    "opening" => Opening(opening, sequence, holdouts),
                     _ => ([], $"entry {sequence} has an unknown kind '{kind}'"),
                 };
 
@@ -220,13 +222,37 @@ internal sealed class SqliteChainVerifier(SqliteConnection connection)
         return (Chain.VoidEntry(sequence, holdout.Fingerprint, look, r.GetString(2), r.GetString(3)), null);
     }
 
+    private static (byte[], string?) Opening(SqliteCommand command, long sequence, Dictionary<long, HoldoutState> holdouts)
+    {
+        command.Parameters["$seq"].Value = sequence;
+        using var r = command.ExecuteReader();
+        if (!r.Read())
+        {
+            return ([], $"entry {sequence} is a test-set opening whose row was deleted");
+        }
+
+        if (!holdouts.TryGetValue(r.GetInt64(0), out var holdout))
+        {
+            return ([], $"entry {sequence} opens a test set for a holdout that is not registered before it");
+        }
+
+        var look = r.GetInt32(1);
+        if (look < 1 || look > holdout.LastLook)
+        {
+            return ([], $"entry {sequence} opens the test set for look {look}, which was not recorded before it");
+        }
+
+        return (Chain.OpeningEntry(sequence, holdout.Fingerprint, look, r.GetInt32(2), r.GetString(3), r.GetDouble(4), r.GetString(5)), null);
+    }
+
     private (long Sequence, string Kind)? Orphan()
     {
         using var command = Command("""
             SELECT t.seq, t.kind FROM (
                 SELECT seq, 'holdout' AS kind FROM holdouts
                 UNION ALL SELECT seq, 'look' FROM looks
-                UNION ALL SELECT seq, 'void' FROM voids) AS t
+                UNION ALL SELECT seq, 'void' FROM voids
+                UNION ALL SELECT seq, 'opening' FROM openings) AS t
             LEFT JOIN entries AS e ON e.seq = t.seq
             WHERE e.seq IS NULL OR e.kind <> t.kind
             ORDER BY t.seq LIMIT 1;

@@ -14,8 +14,9 @@ namespace Accountant.Ledger;
 public sealed class SqliteLedgerStore : ILedgerStore
 {
     /// <summary>The schema version this build writes (PRAGMA user_version).</summary>
-    /// <remarks>Version 2 added how a look was released (guard, released value, holdout answered, training score).</remarks>
-    public const int SchemaVersion = 2;
+    /// <remarks>Version 2 added how a look was released (guard, released value, holdout answered, training score);
+    /// version 3 added openings of sealed test sets.</remarks>
+    public const int SchemaVersion = 3;
 
     /// <summary>PRAGMA application_id: the bytes "ACNT".</summary>
     public const int ApplicationId = 0x41434E54;
@@ -172,9 +173,11 @@ public sealed class SqliteLedgerStore : ILedgerStore
     {
         using var transaction = _connection.BeginTransaction(deferred: false);
         var current = Convert.ToInt32(Scalar("PRAGMA user_version;"), CultureInfo.InvariantCulture);
-        if (current == from && from == 1)
+        if (current == from)
         {
-            Execute(_connection, V2Columns + $"PRAGMA user_version = {SchemaVersion};");
+            if (current < 2) Execute(_connection, V2Columns);
+            if (current < 3) Execute(_connection, V3Openings);
+            Execute(_connection, $"PRAGMA user_version = {SchemaVersion};");
         }
 
         transaction.Commit();
@@ -185,6 +188,20 @@ public sealed class SqliteLedgerStore : ILedgerStore
         ALTER TABLE looks ADD COLUMN released REAL;
         ALTER TABLE looks ADD COLUMN holdout_answered INTEGER;
         ALTER TABLE looks ADD COLUMN train_score REAL;
+        """;
+
+    private const string V3Openings = """
+        CREATE TABLE openings (
+            seq              INTEGER PRIMARY KEY,
+            holdout_id       INTEGER NOT NULL,
+            look_number      INTEGER NOT NULL,
+            test_size        INTEGER NOT NULL,
+            test_fingerprint TEXT NOT NULL,
+            test_score       REAL NOT NULL,
+            recorded_at      TEXT NOT NULL
+        );
+        CREATE TRIGGER openings_no_update BEFORE UPDATE ON openings BEGIN SELECT RAISE(ABORT, 'the ledger is append-only'); END;
+        CREATE TRIGGER openings_no_delete BEFORE DELETE ON openings BEGIN SELECT RAISE(ABORT, 'the ledger is append-only'); END;
         """;
 
     private void Initialize()
@@ -246,7 +263,7 @@ public sealed class SqliteLedgerStore : ILedgerStore
         }
 
         // A new ledger is built as version 1 and then taken through every upgrade, so new and upgraded ledgers are alike.
-        Execute(_connection, V2Columns + $"PRAGMA user_version = {SchemaVersion};");
+        Execute(_connection, V2Columns + V3Openings + $"PRAGMA user_version = {SchemaVersion};");
         transaction.Commit();
     }
 
@@ -422,6 +439,49 @@ public sealed class SqliteLedgerStore : ILedgerStore
 
         transaction.Commit();
         return new LookVoid(sequence, lookNumber, reason, Chain.ParseTimestamp(recorded));
+    });
+
+    public TestOpening AppendOpening(Holdout holdout, int lookNumber, int testSize, string testFingerprint, double testScore) => Guarded(() =>
+    {
+        using var transaction = _connection.BeginTransaction(deferred: false);
+        var exists = Convert.ToInt64(ScalarWith("SELECT count(*) FROM looks WHERE holdout_id = $id AND number = $number;", ("$id", holdout.Key), ("$number", lookNumber)), CultureInfo.InvariantCulture);
+        if (exists == 0)
+        {
+            throw AccountantException.BadArguments($"holdout '{holdout.Name}' has no look {lookNumber} to open the test set for.");
+        }
+
+        var recorded = Chain.Timestamp(_clock.GetUtcNow());
+        var (sequence, previous) = Tail();
+        var canonical = Chain.OpeningEntry(sequence, holdout.Fingerprint, lookNumber, testSize, testFingerprint, testScore, recorded);
+        InsertEntry(sequence, "opening", previous, Chain.Link(previous, canonical));
+        using (var command = Command("INSERT INTO openings (seq, holdout_id, look_number, test_size, test_fingerprint, test_score, recorded_at) VALUES ($seq, $id, $look, $size, $fingerprint, $score, $recorded);"))
+        {
+            command.Parameters.AddWithValue("$seq", sequence);
+            command.Parameters.AddWithValue("$id", holdout.Key);
+            command.Parameters.AddWithValue("$look", lookNumber);
+            command.Parameters.AddWithValue("$size", testSize);
+            command.Parameters.AddWithValue("$fingerprint", testFingerprint);
+            command.Parameters.AddWithValue("$score", testScore);
+            command.Parameters.AddWithValue("$recorded", recorded);
+            command.ExecuteNonQuery();
+        }
+
+        transaction.Commit();
+        return new TestOpening(sequence, lookNumber, testSize, testFingerprint, testScore, Chain.ParseTimestamp(recorded));
+    });
+
+    public IReadOnlyList<TestOpening> Openings(Holdout holdout) => Guarded(() =>
+    {
+        using var command = Command("SELECT seq, look_number, test_size, test_fingerprint, test_score, recorded_at FROM openings WHERE holdout_id = $id ORDER BY seq;");
+        command.Parameters.AddWithValue("$id", holdout.Key);
+        using var reader = command.ExecuteReader();
+        var openings = new List<TestOpening>();
+        while (reader.Read())
+        {
+            openings.Add(new TestOpening(reader.GetInt64(0), reader.GetInt32(1), reader.GetInt32(2), reader.GetString(3), reader.GetDouble(4), Chain.ParseTimestamp(reader.GetString(5))));
+        }
+
+        return openings;
     });
 
     public IReadOnlyList<Look> Looks(Holdout holdout) => Guarded(() =>

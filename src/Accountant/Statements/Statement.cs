@@ -53,8 +53,12 @@ public sealed record Statement(
     Budget Budget,
     string? ChainHead,
     IReadOnlyList<StatementWarning> Warnings,
-    IReadOnlyList<string> Cautions)
+    IReadOnlyList<string> Cautions,
+    IReadOnlyList<TestOpening>? Openings = null)
 {
+    /// <summary>How many times the sealed test set was opened.</summary>
+    public int TestOpenings => Openings?.Count ?? 0;
+
     /// <summary>The tightest guarantee's line (bounds are listed tightest first).</summary>
     public BoundLine? Primary => Bounds.Count > 0 ? Bounds[0] : null;
 

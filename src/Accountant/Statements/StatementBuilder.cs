@@ -41,7 +41,18 @@ public static class StatementBuilder
         var scoreOnly = looks.Count(l => !l.HasLosses);
         var unguarded = adaptive > 0 && AdaptiveAccounting.HasUnguardedAdaptivity(accounted);
         var warnings = Warnings(holdout, looks, voided.Count, scoreOnly, adaptive, unguarded, logLooks, best, bounds, budget, options);
-        return new Statement(holdout, options, m, adaptive, voided.Count, scoreOnly, logLooks, unguarded, best, bounds, budget, chainHead, warnings, Cautions.All);
+        var openings = inputs.Openings ?? [];
+        if (openings.Count > 1)
+        {
+            warnings.Add(new("test-reopened", $"the sealed test set was opened {openings.Count} times; only the first opening is an untouched estimate, and every later one is another look at data that has already informed a choice."));
+        }
+
+        if (openings.Count > 0 && best is not null && best.Number != openings[0].LookNumber && best.Sequence > openings[0].Sequence)
+        {
+            warnings.Add(new("selected-after-unseal", $"the selected look #{best.Number} was recorded after the test set was opened for look #{openings[0].LookNumber}; a configuration chosen after seeing the test score cannot be judged by that test set."));
+        }
+
+        return new Statement(holdout, options, m, adaptive, voided.Count, scoreOnly, logLooks, unguarded, best, bounds, budget, chainHead, warnings, Cautions.All, openings);
     }
 
     private static ValueSpace DefaultSpace(Holdout holdout, long? positives) => holdout.Metric switch

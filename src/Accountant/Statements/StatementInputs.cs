@@ -7,7 +7,8 @@ namespace Accountant.Statements;
 /// <param name="Space">The value space of a released score (for transcript counting); defaults from the metric when null.</param>
 /// <param name="Positives">For AUC holdouts: the number of positive examples.</param>
 /// <param name="LossesOf">Reads one look's per-example losses, for methods that need them (empirical Bernstein).</param>
-public sealed record StatementInputs(ValueSpace? Space = null, long? Positives = null, Func<Look, byte[]?>? LossesOf = null)
+/// <param name="Openings">The openings of the holdout's sealed test set, oldest first.</param>
+public sealed record StatementInputs(ValueSpace? Space = null, long? Positives = null, Func<Look, byte[]?>? LossesOf = null, IReadOnlyList<TestOpening>? Openings = null)
 {
     public static StatementInputs None { get; } = new();
 }

@@ -87,6 +87,7 @@ public sealed class AdaptiveLedgerTests : IDisposable
             command.CommandText = """
                 ALTER TABLE looks DROP COLUMN guard; ALTER TABLE looks DROP COLUMN released;
                 ALTER TABLE looks DROP COLUMN holdout_answered; ALTER TABLE looks DROP COLUMN train_score;
+                DROP TRIGGER openings_no_update; DROP TRIGGER openings_no_delete; DROP TABLE openings;
                 PRAGMA user_version = 1;
                 """;
             command.ExecuteNonQuery();
