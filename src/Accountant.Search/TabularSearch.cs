@@ -125,7 +125,7 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
             throw AccountantException.BadInput($"the selected model '{record.ModelPath}' cannot be loaded ({e.Message.TrimEnd('.')}); rerun the search to save it again.");
         }
 
-        var view = Views.Build(_ml, prepared, prepared.TestRows);
+        var view = new Views(_ml, prepared).Build(prepared.TestRows);
         var predictions = Runner.Predict(_ml, prepared, model, view, prepared.TestRows);
         var examples = prepared.TestRows.Select(r => new HoldoutExample(prepared.Data(r).Id(prepared.Row(r)), prepared.Data(r).Label(prepared.Row(r)))).ToList();
         var sorted = examples.OrderBy(e => e.Id, StringComparer.Ordinal).ToList();
@@ -260,20 +260,46 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
         public float[] Features { get; set; } = [];
         public float Regression { get; set; }
         public bool Binary { get; set; }
-        public uint Key { get; set; }
+        public string Class { get; set; } = "";
     }
 
-    /// <summary>The ML.NET views of the training and validation rows.</summary>
-    private sealed class Views(MLContext ml, Prepared prepared)
+    /// <summary>
+    /// The ML.NET views of the rows. Multiclass labels become keys through a value-to-key map fitted on the training rows;
+    /// predicted keys are read back through the key's own value annotations, so no ordering is assumed.
+    /// </summary>
+    private sealed class Views
     {
-        public IDataView Training { get; } = Build(ml, prepared, prepared.TrainingRows);
-        public IDataView Validation { get; } = Build(ml, prepared, prepared.ValidationRows);
+        private readonly MLContext _ml;
+        private readonly Prepared _prepared;
+        private readonly ITransformer _label;
 
-        public static IDataView Build(MLContext ml, Prepared p, IReadOnlyList<(int File, int Row)> rows)
+        public Views(MLContext ml, Prepared prepared)
         {
+            _ml = ml;
+            _prepared = prepared;
+            var raw = Raw(prepared.TrainingRows);
+            IEstimator<ITransformer> label = prepared.Task switch
+            {
+                TaskKind.Binary => ml.Transforms.CopyColumns("Label", nameof(Row.Binary)),
+                TaskKind.Multiclass => ml.Transforms.Conversion.MapValueToKey("Label", nameof(Row.Class)),
+                _ => ml.Transforms.CopyColumns("Label", nameof(Row.Regression)),
+            };
+            _label = label.Fit(raw);
+            Training = _label.Transform(raw);
+            Validation = Build(prepared.ValidationRows);
+        }
+
+        public IDataView Training { get; }
+
+        public IDataView Validation { get; }
+
+        public IDataView Build(IReadOnlyList<(int File, int Row)> rows) => _label.Transform(Raw(rows));
+
+        private IDataView Raw(IReadOnlyList<(int File, int Row)> rows)
+        {
+            var p = _prepared;
             var definition = SchemaDefinition.Create(typeof(Row));
             definition["Features"].ColumnType = new VectorDataViewType(NumberDataViewType.Single, p.Featurizer.Width);
-            if (p.Task == TaskKind.Multiclass) definition["Key"].ColumnType = new KeyDataViewType(typeof(uint), p.Classes.Count);
             var data = rows.Select(r =>
             {
                 var label = p.Data(r).Label(r.Row);
@@ -282,12 +308,10 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
                     Features = p.Featurizer.Transform(p.Data(r), r.Row),
                     Regression = p.Task == TaskKind.Regression ? (float)double.Parse(label, CultureInfo.InvariantCulture) : 0f,
                     Binary = p.Task == TaskKind.Binary && label == p.Classes[1],
-                    Key = p.Task == TaskKind.Multiclass ? (uint)(p.Classes.IndexOf(label) + 1) : 0,
+                    Class = label,
                 };
             }).ToList();
-            var view = ml.Data.LoadFromEnumerable(data, definition);
-            var label = p.Task switch { TaskKind.Binary => "Binary", TaskKind.Multiclass => "Key", _ => "Regression" };
-            return ml.Transforms.CopyColumns("Label", label).Fit(view).Transform(view);
+            return _ml.Data.LoadFromEnumerable(data, definition);
         }
     }
 
@@ -427,13 +451,16 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
             }
             else
             {
+                VBuffer<ReadOnlyMemory<char>> names = default;
+                scored.Schema[column].GetKeyValues(ref names);
+                var classes = names.DenseValues().Select(v => v.ToString()).ToArray();
                 var getter = cursor.GetGetter<uint>(scored.Schema[column]);
                 uint value = 0;
                 while (cursor.MoveNext())
                 {
                     getter(ref value);
-                    // Keys are 1-based; 0 would be "missing", which a trained classifier does not predict. Map it to a class no label has.
-                    predictions.Add(new Prediction(p.Data(rows[i]).Id(rows[i].Row), value >= 1 && value <= p.Classes.Count ? p.Classes[(int)value - 1] : "\u0000none"));
+                    // Keys are 1-based; 0 would be "missing", which a trained classifier does not predict: it counts as an error.
+                    predictions.Add(new Prediction(p.Data(rows[i]).Id(rows[i].Row), value >= 1 && value <= classes.Length ? classes[value - 1] : "(no class)"));
                     i++;
                 }
             }
