@@ -37,7 +37,7 @@ public sealed record BiasCorrection(double Estimate, double Lower, double Upper,
 
 /// <summary>
 /// The single-step max-statistic bootstrap (Westfall &amp; Young 1993, Resampling-Based Multiple Testing, Wiley;
-/// Romano &amp; Wolf 2005, Econometrica 73:1237): the (1 − δ) quantile c of max_k (ê_k − ê*_k)/σ_k over the resamples
+/// Romano &amp; Wolf 2005, Econometrica 73:1237): the (1 − δ) quantile c of max_k (ê_k − ê*_k)/σ*_k over the resamples (σ*_k the resample's own standard error, studentized as in Romano &amp; Wolf)
 /// gives the simultaneous bound ê_k + c·σ_k for every look at once (two-sided: |ê_k − ê*_k| and ê_k ± c·σ_k).
 /// It adapts to correlated configurations, and its coverage is asymptotic, not guaranteed.
 /// </summary>
@@ -97,12 +97,7 @@ public static class BootstrapEstimates
         var k = matrix.Rows;
         var n = matrix.Size;
         var observed = new double[k];
-        var inverseScale = new double[k];
-        for (var j = 0; j < k; j++)
-        {
-            observed[j] = matrix.ErrorRate(j);
-            inverseScale[j] = 1.0 / StandardError(observed[j], n);
-        }
+        for (var j = 0; j < k; j++) observed[j] = matrix.ErrorRate(j);
 
         var maxima = new double[draws.Resamples];
         var twoSided = sided == Sidedness.TwoSided;
@@ -112,7 +107,10 @@ public static class BootstrapEstimates
             var max = double.NegativeInfinity;
             for (var j = 0; j < k; j++)
             {
-                var deviation = (observed[j] - row[j] / (double)n) * inverseScale[j];
+                // Studentized (the bootstrap-t root): each resample's deviation is divided by that resample's own standard error,
+                // so the skewness of a binomial proportion near 0 is carried into the critical value.
+                var resampled = row[j] / (double)n;
+                var deviation = (observed[j] - resampled) / StandardError(resampled, n);
                 if (twoSided) deviation = Math.Abs(deviation);
                 if (deviation > max) max = deviation;
             }
