@@ -213,7 +213,13 @@ public sealed class Bookkeeper : IDisposable
     public Statement Statement(string holdoutName, StatementOptions? options = null)
     {
         var holdout = Holdout(holdoutName);
-        return StatementBuilder.Build(holdout, Store.Looks(holdout), Store.Voids(holdout), Store.ChainHead(), options);
+        options ??= new StatementOptions();
+        PerExampleMethods.Check(holdout, options);
+        var looks = Store.Looks(holdout);
+        var voids = Store.Voids(holdout);
+        var statement = StatementBuilder.Build(holdout, looks, voids, Store.ChainHead(), options);
+        // Per-example losses are read only for the methods that need them (--estimates, --winner).
+        return options.Estimates || options.Winner ? PerExampleMethods.Add(statement, Store, looks, voids) : statement;
     }
 
     public ChainReport Verify(string? expectedHead = null) => Store.Verify(expectedHead);

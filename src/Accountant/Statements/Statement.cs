@@ -14,6 +14,18 @@ public sealed record StatementOptions
     public Sidedness Sided { get; init; } = Sidedness.OneSided;
 
     public double Delta => 1.0 - Confidence;
+
+    /// <summary>Add the bootstrap estimates (bootstrap-bias, max-bootstrap); they read every look's per-example losses.</summary>
+    public bool Estimates { get; init; }
+
+    /// <summary>Add the winner test (McNemar best against runner-up, Holm tie set); it reads every look's per-example losses.</summary>
+    public bool Winner { get; init; }
+
+    /// <summary>Bootstrap resamples B for the estimates.</summary>
+    public int Resamples { get; init; } = Accountant.Estimates.BootstrapSettings.DefaultResamples;
+
+    /// <summary>The bootstrap's seed: the same seed reproduces the same estimates.</summary>
+    public ulong Seed { get; init; } = Accountant.Estimates.BootstrapSettings.DefaultSeed;
 }
 
 /// <summary>One method's corrected bound on the selected look's true score.</summary>
@@ -52,6 +64,15 @@ public sealed record Statement(
     IReadOnlyList<StatementWarning> Warnings,
     IReadOnlyList<string> Cautions)
 {
+    /// <summary>The bootstrap estimates, when asked for (<see cref="StatementOptions.Estimates"/>): never guarantees.</summary>
+    public IReadOnlyList<EstimateLine> Estimates { get; init; } = [];
+
+    /// <summary>Why estimates that were asked for could not be computed, or what they left out; null otherwise.</summary>
+    public string? EstimatesNote { get; init; }
+
+    /// <summary>The winner test, when asked for (<see cref="StatementOptions.Winner"/>).</summary>
+    public Accountant.Comparisons.WinnerTestResult? Winner { get; init; }
+
     /// <summary>The default method's line: binomial-union for 0/1 losses, hoeffding-union otherwise.</summary>
     public BoundLine? Primary => Bounds.Count > 0 ? Bounds[0] : null;
 }
