@@ -16,6 +16,14 @@ public sealed record LookInput
     /// <summary>One prediction per holdout example; the losses and the score are computed from them.</summary>
     public IReadOnlyList<Prediction>? Predictions { get; init; }
 
+    /// <summary>
+    /// Per-example losses the caller computed, in the holdout's id order: a bitset (bit i of byte i/8, least significant
+    /// first, 1 = error) for 0/1 metrics, little-endian float32 otherwise. The score is computed from them. For batch
+    /// ingest from code that already holds the losses; predictions are checked against the holdout's ids and labels,
+    /// these only against its size.
+    /// </summary>
+    public byte[]? Losses { get; init; }
+
     /// <summary>A label grouping the looks of one search process.</summary>
     public string? Search { get; init; }
 
@@ -178,9 +186,15 @@ public sealed class Bookkeeper : IDisposable
         var configuration = ConfigurationJson.Canonicalize(input.Configuration);
         if (input.Search is not null) CheckName(input.Search, "search label");
         if (input.Stage is not null) CheckName(input.Stage, "stage");
-        if (input.Predictions is not null && input.Score is not null)
+        if ((input.Predictions is not null ? 1 : 0) + (input.Score is not null ? 1 : 0) + (input.Losses is not null ? 1 : 0) > 1)
         {
-            throw AccountantException.BadArguments("give either predictions or a score for a look, not both.");
+            throw AccountantException.BadArguments("give one of predictions, per-example losses or a score for a look, not several.");
+        }
+
+        if (input.Losses is { } given)
+        {
+            var (encoding, fromLosses) = LossInput.Check(holdout, given);
+            return new NewLook(configuration, fromLosses, encoding, given, input.Search, input.Stage, input.Adaptive, input.Seconds);
         }
 
         if (input.Predictions is { } predictions)

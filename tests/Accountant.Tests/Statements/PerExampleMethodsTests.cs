@@ -80,3 +80,26 @@ public class PerExampleMethodsTests
         Assert.InRange(bbc.Estimate!.Value, 0.8, 0.95);
     }
 }
+
+public class LossInputTests
+{
+    [Fact]
+    public void Losses_given_directly_are_stored_with_their_score_and_bad_ones_are_refused_with_nothing_written()
+    {
+        using var temp = new TempLedger();
+        using var book = temp.Create();
+        book.RegisterHoldout("v", TempLedger.Examples(10));
+        var look = book.RecordMany("v", [new LookInput { Configuration = "{}", Losses = [0b0000_0111, 0b01] }])[0];
+        Assert.Equal(0.4, look.Score, 12);
+        Assert.Equal([0b0000_0111, 0b01], book.Store.LossBytes(book.Holdout("v"), 1));
+        var head = book.Store.ChainHead();
+        var tooShort = Assert.Throws<AccountantException>(() => book.RecordMany("v", [new LookInput { Configuration = "{}", Losses = [1] }]));
+        Assert.Equal(ErrorKind.BadInput, tooShort.Kind);
+        var spare = Assert.Throws<AccountantException>(() => book.RecordMany("v", [new LookInput { Configuration = "{}", Losses = [0, 0b100] }]));
+        Assert.Contains("spare bits", spare.Message);
+        var both = Assert.Throws<AccountantException>(() => book.RecordMany("v", [new LookInput { Configuration = "{}", Losses = [0, 0], Score = 0.1 }]));
+        Assert.Equal(ErrorKind.BadArguments, both.Kind);
+        Assert.Equal(head, book.Store.ChainHead());
+        Assert.True(book.Verify().Valid);
+    }
+}
