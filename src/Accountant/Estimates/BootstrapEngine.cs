@@ -111,7 +111,9 @@ public static class BootstrapEngine
     /// <summary>Per-thread buffers: the weights of one group and their planes.</summary>
     private sealed class Scratch(int size, int stride)
     {
-        private readonly int[] _counts = new int[GroupSize * size];
+        // Each resample's counts are padded to whole 64-example words (zeros past n) so that planes are built 64 at a time.
+        private readonly int _padded = stride * 64;
+        private readonly int[] _counts = new int[GroupSize * stride * 64];
 
         public ulong[] Planes { get; private set; } = new ulong[GroupSize * 4 * stride];
 
@@ -125,7 +127,7 @@ public static class BootstrapEngine
             for (var r = 0; r < count; r++)
             {
                 var random = new ResampleRandom(seed, first + r);
-                var counts = _counts.AsSpan(r * size, size);
+                var counts = _counts.AsSpan(r * _padded, size);
                 for (var j = 0; j < size; j++) counts[random.NextBelow(size)]++;
                 foreach (var c in counts) max = Math.Max(max, c);
             }
@@ -136,10 +138,56 @@ public static class BootstrapEngine
             Array.Clear(Zeros);
             for (var r = 0; r < count; r++)
             {
-                BuildPlanes(_counts.AsSpan(r * size, size), Planes.AsSpan(r * planes * stride, planes * stride), planes, stride, Zeros.AsSpan(r * stride, stride));
+                var planeSpan = Planes.AsSpan(r * planes * stride, planes * stride);
+                var zeros = Zeros.AsSpan(r * stride, stride);
+                if (Vector512.IsHardwareAccelerated && planes <= 8)
+                {
+                    BuildPlanesVector(_counts.AsSpan(r * _padded, _padded), size, planeSpan, planes, stride, zeros);
+                }
+                else
+                {
+                    BuildPlanes(_counts.AsSpan(r * _padded, size), planeSpan, planes, stride, zeros);
+                }
             }
 
             return planes;
+        }
+
+        /// <summary>Bit p of 16 counts at a time: shift it to the sign bit and gather the sign bits (VPMOVD2M).</summary>
+        private static void BuildPlanesVector(ReadOnlySpan<int> counts, int n, Span<ulong> planes, int planeCount, int stride, Span<ulong> zeros)
+        {
+            ref var start = ref MemoryMarshal.GetReference(counts);
+            var words = (n + 63) / 64;
+            for (var w = 0; w < words; w++)
+            {
+                ulong zero = 0, p0 = 0, p1 = 0, p2 = 0, p3 = 0, p4 = 0, p5 = 0, p6 = 0, p7 = 0;
+                for (var q = 0; q < 4; q++)
+                {
+                    var c = Vector512.LoadUnsafe(ref start, (nuint)(64 * w + 16 * q));
+                    var shift = 16 * q;
+                    zero |= (ulong)Vector512.Equals(c, Vector512<int>.Zero).ExtractMostSignificantBits() << shift;
+                    p0 |= (ulong)Vector512.ShiftLeft(c, 31).ExtractMostSignificantBits() << shift;
+                    if (planeCount > 1) p1 |= (ulong)Vector512.ShiftLeft(c, 30).ExtractMostSignificantBits() << shift;
+                    if (planeCount > 2) p2 |= (ulong)Vector512.ShiftLeft(c, 29).ExtractMostSignificantBits() << shift;
+                    if (planeCount > 3) p3 |= (ulong)Vector512.ShiftLeft(c, 28).ExtractMostSignificantBits() << shift;
+                    if (planeCount > 4) p4 |= (ulong)Vector512.ShiftLeft(c, 27).ExtractMostSignificantBits() << shift;
+                    if (planeCount > 5) p5 |= (ulong)Vector512.ShiftLeft(c, 26).ExtractMostSignificantBits() << shift;
+                    if (planeCount > 6) p6 |= (ulong)Vector512.ShiftLeft(c, 25).ExtractMostSignificantBits() << shift;
+                    if (planeCount > 7) p7 |= (ulong)Vector512.ShiftLeft(c, 24).ExtractMostSignificantBits() << shift;
+                }
+
+                // The padding past n counts zero but is not out of bag: it is not an example.
+                var valid = Math.Min(64, n - 64 * w);
+                zeros[w] = valid == 64 ? zero : zero & ((1UL << valid) - 1);
+                planes[w] = p0;
+                if (planeCount > 1) planes[stride + w] = p1;
+                if (planeCount > 2) planes[2 * stride + w] = p2;
+                if (planeCount > 3) planes[3 * stride + w] = p3;
+                if (planeCount > 4) planes[4 * stride + w] = p4;
+                if (planeCount > 5) planes[5 * stride + w] = p5;
+                if (planeCount > 6) planes[6 * stride + w] = p6;
+                if (planeCount > 7) planes[7 * stride + w] = p7;
+            }
         }
 
         private static void BuildPlanes(ReadOnlySpan<int> counts, Span<ulong> planes, int planeCount, int stride, Span<ulong> zeros)
@@ -201,12 +249,42 @@ public static class BootstrapEngine
 
     private static void VectorSums(LossMatrix matrix, ulong[] planes, int planeCount, int[] sums, int first, int count)
     {
+        // One instantiation per plane count, so that the plane loop is unrolled and its lookup tables stay in registers.
+        switch (planeCount)
+        {
+            case 1: VectorSums<One>(matrix, planes, sums, first, count); break;
+            case 2: VectorSums<Two>(matrix, planes, sums, first, count); break;
+            case 3: VectorSums<Three>(matrix, planes, sums, first, count); break;
+            case 4: VectorSums<Four>(matrix, planes, sums, first, count); break;
+            default: VectorSums<Five>(matrix, planes, sums, first, count); break;
+        }
+    }
+
+    private interface IPlaneCount
+    {
+        static abstract int Count { get; }
+    }
+
+    private struct One : IPlaneCount { public static int Count => 1; }
+
+    private struct Two : IPlaneCount { public static int Count => 2; }
+
+    private struct Three : IPlaneCount { public static int Count => 3; }
+
+    private struct Four : IPlaneCount { public static int Count => 4; }
+
+    private struct Five : IPlaneCount { public static int Count => 5; }
+
+    private static void VectorSums<TPlanes>(LossMatrix matrix, ulong[] planes, int[] sums, int first, int count)
+        where TPlanes : struct, IPlaneCount
+    {
         var stride = matrix.Stride;
         var k = matrix.Rows;
         ref var lossBase = ref MemoryMarshal.GetArrayDataReference(matrix.Bits);
         ref var planeBase = ref MemoryMarshal.GetArrayDataReference(planes);
-        var groupStride = (nuint)(planeCount * stride);
+        var groupStride = (nuint)(TPlanes.Count * stride);
         var planeStride = (nuint)stride;
+        var luts = new Tables(Luts);
         for (var row = 0; row < k; row++)
         {
             var rowStart = (nuint)(row * stride);
@@ -214,10 +292,10 @@ public static class BootstrapEngine
             for (nuint w = 0; w < (nuint)stride; w += LossMatrix.BlockWords)
             {
                 var loss = Vector512.LoadUnsafe(ref lossBase, rowStart + w);
-                a0 += Weighted(loss, ref planeBase, w, planeCount, planeStride);
-                a1 += Weighted(loss, ref planeBase, groupStride + w, planeCount, planeStride);
-                a2 += Weighted(loss, ref planeBase, 2 * groupStride + w, planeCount, planeStride);
-                a3 += Weighted(loss, ref planeBase, 3 * groupStride + w, planeCount, planeStride);
+                a0 += Weighted<TPlanes>(loss, ref planeBase, w, planeStride, luts);
+                a1 += Weighted<TPlanes>(loss, ref planeBase, groupStride + w, planeStride, luts);
+                a2 += Weighted<TPlanes>(loss, ref planeBase, 2 * groupStride + w, planeStride, luts);
+                a3 += Weighted<TPlanes>(loss, ref planeBase, 3 * groupStride + w, planeStride, luts);
             }
 
             sums[first * k + row] = (int)Vector512.Sum(a0);
@@ -227,22 +305,33 @@ public static class BootstrapEngine
         }
     }
 
+    /// <summary>The per-plane lookup tables, held in locals so that the JIT keeps them in registers.</summary>
+    private readonly struct Tables(Vector512<byte>[] luts)
+    {
+        public readonly Vector512<byte> Nibble = Vector512.Create((byte)0x0F);
+        public readonly Vector512<byte> P0 = luts[0], P1 = luts[1], P2 = luts[2], P3 = luts[3], P4 = luts[4];
+    }
+
     /// <summary>Σ_p 2^p·popcount(loss AND plane_p) over one 512-bit block, as eight partial sums.</summary>
     [MethodImpl(MethodImplOptions.AggressiveInlining)]
-    private static Vector512<ulong> Weighted(Vector512<ulong> loss, ref ulong planeBase, nuint offset, int planeCount, nuint planeStride)
+    private static Vector512<ulong> Weighted<TPlanes>(Vector512<ulong> loss, ref ulong planeBase, nuint offset, nuint planeStride, in Tables t)
+        where TPlanes : struct, IPlaneCount
     {
-        var nibble = Vector512.Create((byte)0x0F);
-        var bytes = Vector512<byte>.Zero;
-        for (var p = 0; p < planeCount; p++)
-        {
-            var x = (loss & Vector512.LoadUnsafe(ref planeBase, offset + (nuint)p * planeStride)).AsByte();
-            var lut = Luts[p];
-            var low = x & nibble;
-            var high = Vector512.ShiftRightLogical(x.AsUInt16(), 4).AsByte() & nibble;
-            bytes += Avx512BW.Shuffle(lut, low) + Avx512BW.Shuffle(lut, high);
-        }
-
+        var bytes = Lookup(loss & Vector512.LoadUnsafe(ref planeBase, offset), t.P0, t.Nibble);
+        if (TPlanes.Count > 1) bytes += Lookup(loss & Vector512.LoadUnsafe(ref planeBase, offset + planeStride), t.P1, t.Nibble);
+        if (TPlanes.Count > 2) bytes += Lookup(loss & Vector512.LoadUnsafe(ref planeBase, offset + 2 * planeStride), t.P2, t.Nibble);
+        if (TPlanes.Count > 3) bytes += Lookup(loss & Vector512.LoadUnsafe(ref planeBase, offset + 3 * planeStride), t.P3, t.Nibble);
+        if (TPlanes.Count > 4) bytes += Lookup(loss & Vector512.LoadUnsafe(ref planeBase, offset + 4 * planeStride), t.P4, t.Nibble);
         return Avx512BW.SumAbsoluteDifferences(bytes, Vector512<byte>.Zero).AsUInt64();
+    }
+
+    /// <summary>Per byte, the table's value for its low nibble plus its value for its high nibble.</summary>
+    [MethodImpl(MethodImplOptions.AggressiveInlining)]
+    private static Vector512<byte> Lookup(Vector512<ulong> x, Vector512<byte> table, Vector512<byte> nibble)
+    {
+        var bytes = x.AsByte();
+        var high = Vector512.ShiftRightLogical(x, 4).AsByte() & nibble;
+        return Avx512BW.Shuffle(table, bytes & nibble) + Avx512BW.Shuffle(table, high);
     }
 
     private static Vector512<byte>[] BuildLuts()

@@ -10,6 +10,8 @@ namespace Accountant.Estimates;
 public struct ResampleRandom
 {
     private ulong _s0, _s1, _s2, _s3;
+    private uint _half;
+    private bool _hasHalf;
 
     public ResampleRandom(ulong seed, long resample)
     {
@@ -34,21 +36,39 @@ public struct ResampleRandom
         return result;
     }
 
-    /// <summary>A uniform integer in [0, bound), without bias (Lemire 2019, ACM TOMACS 29:3, multiply-and-reject).</summary>
+    /// <summary>
+    /// A uniform integer in [0, bound), without bias: Lemire's multiply-and-reject on 32 random bits (Lemire 2019,
+    /// ACM TOMACS 29:3, Alg. 5). Each 64-bit output serves two draws, low half first.
+    /// </summary>
     public int NextBelow(int bound)
     {
-        var range = (ulong)bound;
-        var high = Math.BigMul(NextUInt64(), range, out var low);
-        if (low < range)
+        var range = (uint)bound;
+        var product = (ulong)NextUInt32() * range;
+        if ((uint)product < range)
         {
-            var threshold = (0 - range) % range;
-            while (low < threshold)
+            var threshold = (0u - range) % range;
+            while ((uint)product < threshold)
             {
-                high = Math.BigMul(NextUInt64(), range, out low);
+                product = (ulong)NextUInt32() * range;
             }
         }
 
-        return (int)high;
+        return (int)(product >> 32);
+    }
+
+    /// <summary>The next 32 random bits: the low half of a 64-bit output, then its high half.</summary>
+    public uint NextUInt32()
+    {
+        if (_hasHalf)
+        {
+            _hasHalf = false;
+            return _half;
+        }
+
+        var bits = NextUInt64();
+        _half = (uint)(bits >> 32);
+        _hasHalf = true;
+        return (uint)bits;
     }
 
     private static ulong SplitMix(ulong z)
