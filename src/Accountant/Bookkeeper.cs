@@ -52,6 +52,9 @@ public sealed class Bookkeeper : IDisposable
 {
     public const int MaxNameLength = 200;
 
+    /// <summary>Batches at least this large are checked and canonicalized in parallel.</summary>
+    private const int ParallelBatch = 256;
+
     public Bookkeeper(ILedgerStore store) => Store = store;
 
     public ILedgerStore Store { get; }
@@ -163,19 +166,42 @@ public sealed class Bookkeeper : IDisposable
     public IReadOnlyList<Look> RecordMany(string holdoutName, IReadOnlyList<LookInput> inputs, Func<int, string>? describe = null)
     {
         var holdout = Holdout(holdoutName);
-        IReadOnlyList<HoldoutExample>? examples = null;
-        var prepared = new List<NewLook>(inputs.Count);
-        for (var i = 0; i < inputs.Count; i++)
+        IReadOnlyList<HoldoutExample>? examples = inputs.Any(i => i.Predictions is not null) ? Store.Examples(holdout) : null;
+        var prepared = new NewLook[inputs.Count];
+        var failures = new AccountantException?[inputs.Count];
+        void PrepareOne(int i)
         {
             try
             {
-                prepared.Add(Prepare(holdout, inputs[i], ref examples));
+                prepared[i] = Prepare(holdout, inputs[i], ref examples);
             }
-            catch (AccountantException e) when (inputs.Count > 1 || describe is not null)
+            catch (AccountantException e)
             {
-                var where = describe?.Invoke(i) ?? $"look {i + 1} of {inputs.Count}";
-                throw new AccountantException(e.Kind, $"{where}: {e.Message} Nothing was recorded.", e);
+                failures[i] = e;
             }
+        }
+
+        // Large batches are checked on every core (each input on its own); the first bad input, in order, is reported.
+        if (inputs.Count >= ParallelBatch)
+        {
+            Parallel.For(0, inputs.Count, PrepareOne);
+        }
+        else
+        {
+            for (var i = 0; i < inputs.Count; i++)
+            {
+                PrepareOne(i);
+                if (failures[i] is not null) break;
+            }
+        }
+
+        var first = Array.FindIndex(failures, f => f is not null);
+        if (first >= 0)
+        {
+            var e = failures[first]!;
+            if (inputs.Count == 1 && describe is null) throw e;
+            var where = describe?.Invoke(first) ?? $"look {first + 1} of {inputs.Count}";
+            throw new AccountantException(e.Kind, $"{where}: {e.Message} Nothing was recorded.", e);
         }
 
         return Store.AppendLooks(holdout, prepared);

@@ -309,26 +309,48 @@ public sealed class SqliteLedgerStore : ILedgerStore
         var number = Convert.ToInt32(ScalarWith("SELECT COALESCE(MAX(number), 0) FROM looks WHERE holdout_id = $id;", ("$id", holdout.Key)), CultureInfo.InvariantCulture);
         var (sequence, previous) = Tail();
         var recorded = Chain.Timestamp(_clock.GetUtcNow());
+        var recordedAt = Chain.ParseTimestamp(recorded);
         var written = new List<Look>(looks.Count);
         using var insert = Command("""
             INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at)
             VALUES ($seq, $holdout, $number, $configuration, $digest, $score, $adaptive, $encoding, $losses, $search, $stage, $seconds, $recorded);
             """);
-        var parameters = new[] { "$seq", "$holdout", "$number", "$configuration", "$digest", "$score", "$adaptive", "$encoding", "$losses", "$search", "$stage", "$seconds", "$recorded" }
-            .Select(name => insert.Parameters.Add(name, SqliteType.Text)).ToArray();
+        // Bound with their column's own type, so SQLite stores them without converting text to numbers.
+        var parameters = new (string Name, SqliteType Type)[]
+            {
+                ("$seq", SqliteType.Integer), ("$holdout", SqliteType.Integer), ("$number", SqliteType.Integer), ("$configuration", SqliteType.Text),
+                ("$digest", SqliteType.Text), ("$score", SqliteType.Real), ("$adaptive", SqliteType.Integer), ("$encoding", SqliteType.Integer),
+                ("$losses", SqliteType.Blob), ("$search", SqliteType.Text), ("$stage", SqliteType.Text), ("$seconds", SqliteType.Real), ("$recorded", SqliteType.Text),
+            }
+            .Select(p => insert.Parameters.Add(p.Name, p.Type)).ToArray();
         insert.Prepare();
         using var entry = EntryInsertCommand();
-        foreach (var look in looks)
+        var (entrySeq, entryKind, entryPrev, entryHash) = (entry.Parameters["$seq"], entry.Parameters["$kind"], entry.Parameters["$prev"], entry.Parameters["$hash"]);
+        // Digests and canonical entry bytes depend only on each look and its position, so they are built on every core;
+        // only the chain links (each hash covers the previous one) are computed in order.
+        var digests = new string[looks.Count];
+        var entries = new byte[looks.Count][];
+        var (firstSequence, firstNumber) = (sequence, number + 1);
+        void Canonical(int i)
         {
-            number++;
-            var digest = ConfigurationJson.Digest(look.Configuration);
-            var canonical = Chain.LookEntry(sequence, holdout.Fingerprint, number, look.Configuration, digest, look.Score, look.Adaptive,
+            var look = looks[i];
+            digests[i] = ConfigurationJson.Digest(look.Configuration);
+            entries[i] = Chain.LookEntry(firstSequence + i, holdout.Fingerprint, firstNumber + i, look.Configuration, digests[i], look.Score, look.Adaptive,
                 look.LossEncoding, look.Losses, look.Search, look.Stage, look.Seconds, recorded);
-            var hash = Chain.Link(previous, canonical);
-            entry.Parameters["$seq"].Value = sequence;
-            entry.Parameters["$kind"].Value = "look";
-            entry.Parameters["$prev"].Value = previous;
-            entry.Parameters["$hash"].Value = hash;
+        }
+
+        if (looks.Count >= 256) Parallel.For(0, looks.Count, Canonical);
+        else for (var i = 0; i < looks.Count; i++) Canonical(i);
+        for (var i = 0; i < looks.Count; i++)
+        {
+            var look = looks[i];
+            number++;
+            var digest = digests[i];
+            var hash = Chain.Link(previous, entries[i]);
+            entrySeq.Value = sequence;
+            entryKind.Value = "look";
+            entryPrev.Value = previous;
+            entryHash.Value = hash;
             entry.ExecuteNonQuery();
 
             parameters[0].Value = sequence;
@@ -336,20 +358,17 @@ public sealed class SqliteLedgerStore : ILedgerStore
             parameters[2].Value = number;
             parameters[3].Value = look.Configuration;
             parameters[4].Value = digest;
-            parameters[5].SqliteType = SqliteType.Real;
             parameters[5].Value = look.Score;
             parameters[6].Value = look.Adaptive ? 1 : 0;
             parameters[7].Value = (int)look.LossEncoding;
-            parameters[8].SqliteType = SqliteType.Blob;
             parameters[8].Value = (object?)look.Losses ?? DBNull.Value;
             parameters[9].Value = (object?)look.Search ?? DBNull.Value;
             parameters[10].Value = (object?)look.Stage ?? DBNull.Value;
-            parameters[11].SqliteType = SqliteType.Real;
             parameters[11].Value = (object?)look.Seconds ?? DBNull.Value;
             parameters[12].Value = recorded;
             insert.ExecuteNonQuery();
 
-            written.Add(new Look(sequence, number, look.Configuration, digest, look.Score, look.LossEncoding, look.Search, look.Stage, look.Adaptive, Chain.ParseTimestamp(recorded), look.Seconds));
+            written.Add(new Look(sequence, number, look.Configuration, digest, look.Score, look.LossEncoding, look.Search, look.Stage, look.Adaptive, recordedAt, look.Seconds));
             previous = hash;
             sequence++;
         }
