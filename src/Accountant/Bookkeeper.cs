@@ -255,11 +255,18 @@ public sealed class Bookkeeper : IDisposable
         var holdout = Holdout(holdoutName);
         options ??= new StatementOptions();
         PerExampleMethods.Check(holdout, options);
-        var looks = Store.Looks(holdout);
         var voids = Store.Voids(holdout);
+        if (!options.Estimates && !options.Winner)
+        {
+            // Counts and the best look only: no other look's configuration and no per-example losses are read.
+            var tally = Store.Tally(holdout, voids.Select(v => v.LookNumber).ToHashSet());
+            return StatementBuilder.Build(holdout, tally, voids, Store.ChainHead(), options);
+        }
+
+        // The methods that need per-example losses (--estimates, --winner) read every look.
+        var looks = Store.Looks(holdout);
         var statement = StatementBuilder.Build(holdout, looks, voids, Store.ChainHead(), options);
-        // Per-example losses are read only for the methods that need them (--estimates, --winner).
-        return options.Estimates || options.Winner ? PerExampleMethods.Add(statement, Store, looks, voids) : statement;
+        return PerExampleMethods.Add(statement, Store, looks, voids);
     }
 
     public ChainReport Verify(string? expectedHead = null) => Store.Verify(expectedHead);

@@ -32,7 +32,7 @@ public static class StatementWriter
         var b = new StringBuilder();
         var h = s.Holdout;
         b.AppendLine($"Holdout      {h.Name}: {Text.Count(h.Size)} examples, metric {h.Metric.Name()}");
-        b.AppendLine($"Looks        {Text.Count(s.Looks)} counted ({s.AdaptiveLooks} adaptive, {s.VoidedLooks} voided, {s.ScoreOnlyLooks} score-only)");
+        b.AppendLine($"Looks        {Text.Count(s.Looks)} counted ({s.AdaptiveLooks} adaptive, {Text.Count(s.VoidedLooks)} voided, {Text.Count(s.ScoreOnlyLooks)} score-only)");
         if (s.Best is { } best)
         {
             b.AppendLine($"Best look    #{best.Number}: {h.Metric.Name()} {Text.N(best.Score)}  {Text.Short(best.Configuration, 90)}");

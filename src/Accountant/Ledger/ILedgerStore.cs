@@ -32,6 +32,17 @@ public interface ILedgerStore : IDisposable
 
     IReadOnlyList<LookVoid> Voids(Holdout holdout);
 
+    /// <summary>
+    /// The counts a statement needs and the best non-voided look (lowest score, or highest for accuracy; the earliest on
+    /// ties), without reading every look. Backends may compute it in the database; this default reads every look.
+    /// </summary>
+    Statements.LookTally Tally(Holdout holdout, IReadOnlySet<int> voided)
+    {
+        var looks = Looks(holdout);
+        return new Statements.LookTally(looks.Count, looks.Count(l => l.Adaptive), looks.Count(l => !l.HasLosses),
+            Statements.StatementBuilder.SelectBest(holdout.Metric, looks, voided));
+    }
+
     /// <summary>The stored per-example losses of one look, or null when only its score is known.</summary>
     byte[]? LossBytes(Holdout holdout, int lookNumber);
 

@@ -145,7 +145,22 @@ public sealed class SqliteLedgerStore : ILedgerStore
         }
 
         TryWal();
+        try
+        {
+            Execute(_connection, TallyIndex);
+        }
+        catch (SqliteException e) when (e.SqliteErrorCode is 8 /* READONLY */ or 5 or 6 /* BUSY, LOCKED */)
+        {
+            // A read-only or busy ledger is still read correctly without the index, only more slowly.
+        }
     }
+
+    /// <summary>
+    /// A covering index for <see cref="Tally"/>: a statement counts a million looks from it and finds the best one without
+    /// reading the looks table. It holds no data of its own, so it is not part of the chain or the schema version; a
+    /// ledger made before it existed gets it the first time it is opened writable.
+    /// </summary>
+    private const string TallyIndex = "CREATE INDEX IF NOT EXISTS looks_by_score ON looks (holdout_id, score, number, adaptive, loss_encoding);";
 
     private void TryWal()
     {
@@ -209,6 +224,7 @@ public sealed class SqliteLedgerStore : ILedgerStore
                 recorded_at TEXT NOT NULL
             );
             """);
+        Execute(_connection, TallyIndex);
         foreach (var table in new[] { "entries", "holdouts", "looks", "voids" })
         {
             Execute(_connection, $"""
@@ -406,30 +422,69 @@ public sealed class SqliteLedgerStore : ILedgerStore
 
     public IReadOnlyList<Look> Looks(Holdout holdout) => Guarded(() =>
     {
-        using var command = Command("""
-            SELECT seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at, seconds
-            FROM looks WHERE holdout_id = $id ORDER BY number;
-            """);
+        using var command = Command($"SELECT {LookColumns} FROM looks WHERE holdout_id = $id ORDER BY number;");
         command.Parameters.AddWithValue("$id", holdout.Key);
         using var reader = command.ExecuteReader();
         var looks = new List<Look>();
-        while (reader.Read())
+        while (reader.Read()) looks.Add(ReadLook(reader));
+        return looks;
+    });
+
+    private const string LookColumns = "seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at, seconds";
+
+    private static Look ReadLook(SqliteDataReader reader) => new(
+        reader.GetInt64(0),
+        reader.GetInt32(1),
+        reader.GetString(2),
+        reader.GetString(3),
+        reader.GetDouble(4),
+        (LossEncoding)reader.GetInt32(5),
+        reader.IsDBNull(6) ? null : reader.GetString(6),
+        reader.IsDBNull(7) ? null : reader.GetString(7),
+        reader.GetInt32(8) != 0,
+        Chain.ParseTimestamp(reader.GetString(9)),
+        reader.IsDBNull(10) ? null : reader.GetDouble(10));
+
+    /// <summary>
+    /// Counts in one pass inside SQLite (only columns stored before the losses blob are read, so no blob is touched),
+    /// then reads the one best look in full.
+    /// </summary>
+    public Statements.LookTally Tally(Holdout holdout, IReadOnlySet<int> voided) => Guarded(() =>
+    {
+        using var counts = Command("""
+            SELECT count(*), total(adaptive), total(loss_encoding = 0),
+                   min(CASE WHEN number IN (SELECT look_number FROM voids WHERE holdout_id = $id) THEN NULL ELSE score END),
+                   max(CASE WHEN number IN (SELECT look_number FROM voids WHERE holdout_id = $id) THEN NULL ELSE score END)
+            FROM looks WHERE holdout_id = $id;
+            """);
+        counts.Parameters.AddWithValue("$id", holdout.Key);
+        int looks, adaptive, scoreOnly;
+        double? bestScore;
+        using (var reader = counts.ExecuteReader())
         {
-            looks.Add(new Look(
-                reader.GetInt64(0),
-                reader.GetInt32(1),
-                reader.GetString(2),
-                reader.GetString(3),
-                reader.GetDouble(4),
-                (LossEncoding)reader.GetInt32(5),
-                reader.IsDBNull(6) ? null : reader.GetString(6),
-                reader.IsDBNull(7) ? null : reader.GetString(7),
-                reader.GetInt32(8) != 0,
-                Chain.ParseTimestamp(reader.GetString(9)),
-                reader.IsDBNull(10) ? null : reader.GetDouble(10)));
+            reader.Read();
+            looks = reader.GetInt32(0);
+            adaptive = (int)reader.GetDouble(1);
+            scoreOnly = (int)reader.GetDouble(2);
+            var column = holdout.Metric.HigherIsBetter() ? 4 : 3;
+            bestScore = reader.IsDBNull(column) ? null : reader.GetDouble(column);
         }
 
-        return looks;
+        Look? best = null;
+        if (bestScore is { } score)
+        {
+            using var pick = Command($"""
+                SELECT {LookColumns} FROM looks
+                WHERE holdout_id = $id AND score = $score AND number NOT IN (SELECT look_number FROM voids WHERE holdout_id = $id)
+                ORDER BY number LIMIT 1;
+                """);
+            pick.Parameters.AddWithValue("$id", holdout.Key);
+            pick.Parameters.AddWithValue("$score", score);
+            using var row = pick.ExecuteReader();
+            best = row.Read() ? ReadLook(row) : null;
+        }
+
+        return new Statements.LookTally(looks, adaptive, scoreOnly, best);
     });
 
     public IReadOnlyList<LookVoid> Voids(Holdout holdout) => Guarded(() =>

@@ -46,6 +46,13 @@ public sealed record Budget(double Tolerance, string Method, long MaxLooks, long
     public bool Overused => LooksUsed > MaxLooks;
 }
 
+/// <summary>What a statement needs to know about a holdout's looks: how many, of which kinds, and the best one.</summary>
+/// <param name="Looks">Every look (M), voided ones too.</param>
+/// <param name="Adaptive">Looks marked adaptive.</param>
+/// <param name="ScoreOnly">Looks without per-example losses.</param>
+/// <param name="Best">The best non-voided look (the earliest on ties), or null.</param>
+public sealed record LookTally(int Looks, int Adaptive, int ScoreOnly, Look? Best);
+
 /// <summary>A warning with a stable code that scripts can match.</summary>
 public sealed record StatementWarning(string Code, string Message);
 

@@ -16,18 +16,26 @@ public static class StatementBuilder
 
     public static Statement Build(Holdout holdout, IReadOnlyList<Look> looks, IReadOnlyList<LookVoid> voids, string? chainHead, StatementOptions? options = null)
     {
+        var voided = voids.Select(v => v.LookNumber).ToHashSet();
+        var tally = new LookTally(looks.Count, looks.Count(l => l.Adaptive), looks.Count(l => !l.HasLosses), SelectBest(holdout.Metric, looks, voided));
+        return Build(holdout, tally, voids, chainHead, options);
+    }
+
+    /// <summary>The same statement from the counts alone, so that a ledger of a million looks need not be read look by look.</summary>
+    public static Statement Build(Holdout holdout, LookTally tally, IReadOnlyList<LookVoid> voids, string? chainHead, StatementOptions? options = null)
+    {
         options ??= new StatementOptions();
         Require.Delta(options.Delta);
         Require.Tolerance(options.Tolerance);
 
         var voided = voids.Select(v => v.LookNumber).ToHashSet();
-        var best = SelectBest(holdout.Metric, looks, voided);
-        var m = looks.Count;
+        var best = tally.Best;
+        var m = tally.Looks;
         var bounds = best is null ? [] : BoundsFor(holdout, best.Score, m, options);
         var budget = BudgetFor(holdout, best?.Score, m, options);
-        var scoreOnly = looks.Count(l => !l.HasLosses);
-        var warnings = Warnings(holdout, looks, voided.Count, scoreOnly, best, bounds, budget, options);
-        return new Statement(holdout, options, m, looks.Count(l => l.Adaptive), voided.Count, scoreOnly, best, bounds, budget, chainHead, warnings, Cautions.All);
+        var scoreOnly = tally.ScoreOnly;
+        var warnings = Warnings(holdout, m, voided.Count, scoreOnly, best, bounds, budget, options);
+        return new Statement(holdout, options, m, tally.Adaptive, voided.Count, scoreOnly, best, bounds, budget, chainHead, warnings, Cautions.All);
     }
 
     /// <summary>The best non-voided look: lowest loss, or highest accuracy; the earliest wins a tie.</summary>
@@ -109,18 +117,18 @@ public static class StatementBuilder
         return new Budget(options.Tolerance, HoeffdingUnion.Name, HoeffdingUnion.MaxLooks(holdout.Size, options.Tolerance, options.Delta, width, options.Sided), looks);
     }
 
-    private static List<StatementWarning> Warnings(Holdout holdout, IReadOnlyList<Look> looks, int voided, int scoreOnly, Look? best,
+    private static List<StatementWarning> Warnings(Holdout holdout, int lookCount, int voided, int scoreOnly, Look? best,
         IReadOnlyList<BoundLine> bounds, Budget budget, StatementOptions options)
     {
         var warnings = new List<StatementWarning>();
         string F(double x) => x.ToString("0.####", CultureInfo.InvariantCulture);
-        if (looks.Count == 0)
+        if (lookCount == 0)
         {
             warnings.Add(new("no-looks", $"holdout '{holdout.Name}' has no looks yet; record one with 'accountant record {holdout.Name} ...'."));
         }
         else if (best is null)
         {
-            warnings.Add(new("all-voided", $"every look on holdout '{holdout.Name}' is voided, so there is no selected configuration; the {looks.Count} voided looks still count."));
+            warnings.Add(new("all-voided", $"every look on holdout '{holdout.Name}' is voided, so there is no selected configuration; the {lookCount} voided looks still count."));
         }
 
         if (budget.Overused)
@@ -128,22 +136,22 @@ public static class StatementBuilder
             var margin = bounds.Count > 0 ? $" the margin is now {F(bounds[0].Margin)}," : "";
             warnings.Add(budget.MaxLooks == 0
                 ? new("holdout-overused", $"even a single look's margin exceeds the tolerance {F(options.Tolerance)} at confidence {F(options.Confidence)} on {holdout.Size} examples:{margin} so this holdout is too small to tell configurations apart to that tolerance; 'accountant plan' gives the size needed.")
-                : new("holdout-overused", $"{looks.Count} looks exceed the budget of {budget.MaxLooks} at tolerance {F(options.Tolerance)} and confidence {F(options.Confidence)}:{margin} so this holdout can no longer tell configurations apart to that tolerance; collect fresh validation data for further comparisons."));
+                : new("holdout-overused", $"{lookCount} looks exceed the budget of {budget.MaxLooks} at tolerance {F(options.Tolerance)} and confidence {F(options.Confidence)}:{margin} so this holdout can no longer tell configurations apart to that tolerance; collect fresh validation data for further comparisons."));
         }
 
-        if (looks.Count == 1)
+        if (lookCount == 1)
         {
             warnings.Add(new("single-look", "only one look is recorded, so no correction for comparisons was applied; if other configurations were tried on this holdout, record them too, or the bound is too optimistic."));
         }
 
         if (scoreOnly > 0)
         {
-            warnings.Add(new("score-only-looks", $"{scoreOnly} of {looks.Count} looks carry only a score, without per-example losses; the guaranteed bounds still hold, but paired tests and bootstrap methods cannot use those looks (record predictions to enable them)."));
+            warnings.Add(new("score-only-looks", $"{scoreOnly} of {lookCount} looks carry only a score, without per-example losses; the guaranteed bounds still hold, but paired tests and bootstrap methods cannot use those looks (record predictions to enable them)."));
         }
 
         if (voided > 0)
         {
-            warnings.Add(new("voided-looks", $"{voided} voided look(s) cannot be selected but still count toward the {looks.Count} looks: a look cannot be taken back."));
+            warnings.Add(new("voided-looks", $"{voided} voided look(s) cannot be selected but still count toward the {lookCount} looks: a look cannot be taken back."));
         }
 
         return warnings;
