@@ -16,6 +16,7 @@ public static class AccountantCli
             new RecordCommand(env),
             new ImportCommand(env),
             new StatementCommand(env),
+            new CompareCommand(env),
             new BudgetCommand(env),
             new PlanCommand(env),
             new VoidCommand(env),
@@ -27,6 +28,8 @@ public static class AccountantCli
             new DemoCommand(env),
         };
         root.Options.Add(Common.LedgerOption);
+        // --version prints this tool's version (the built-in one reads the entry assembly, which is the test host in tests).
+        foreach (var version in root.Options.OfType<VersionOption>()) version.Action = new PrintVersion(env);
         root.SetAction(_ =>
         {
             env.Output.WriteLine("accountant: count every look at a validation set; report the best score with a corrected bound.");
@@ -75,5 +78,19 @@ public static class AccountantCli
         }
 
         return result.Invoke(new InvocationConfiguration { Output = env.Output, Error = env.Error, ProcessTerminationTimeout = null });
+    }
+}
+
+/// <summary>The action of <c>--version</c>: the informational version of the command-line assembly.</summary>
+internal sealed class PrintVersion(CliEnvironment env) : System.CommandLine.Invocation.SynchronousCommandLineAction
+{
+    public static string Version { get; } =
+        typeof(PrintVersion).Assembly.GetCustomAttributes(typeof(System.Reflection.AssemblyInformationalVersionAttribute), false)
+            .OfType<System.Reflection.AssemblyInformationalVersionAttribute>().FirstOrDefault()?.InformationalVersion ?? "unknown";
+
+    public override int Invoke(ParseResult parseResult)
+    {
+        env.Output.WriteLine(Version);
+        return ExitCodes.Success;
     }
 }

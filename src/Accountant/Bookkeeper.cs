@@ -17,6 +17,14 @@ public sealed record LookInput
     /// <summary>One prediction per holdout example; the losses and the score are computed from them.</summary>
     public IReadOnlyList<Prediction>? Predictions { get; init; }
 
+    /// <summary>
+    /// Per-example losses the caller computed, in the holdout's id order: a bitset (bit i of byte i/8, least significant
+    /// first, 1 = error) for 0/1 metrics, little-endian float32 otherwise. The score is computed from them. For batch
+    /// ingest from code that already holds the losses; predictions are checked against the holdout's ids and labels,
+    /// these only against its size.
+    /// </summary>
+    public byte[]? Losses { get; init; }
+
     /// <summary>A label grouping the looks of one search process.</summary>
     public string? Search { get; init; }
 
@@ -50,6 +58,9 @@ public sealed record LookInput
 public sealed class Bookkeeper : IDisposable
 {
     public const int MaxNameLength = 200;
+
+    /// <summary>Batches at least this large are checked and canonicalized in parallel.</summary>
+    private const int ParallelBatch = 256;
 
     public Bookkeeper(ILedgerStore store) => Store = store;
 
@@ -183,26 +194,57 @@ public sealed class Bookkeeper : IDisposable
     public IReadOnlyList<Look> RecordMany(string holdoutName, IReadOnlyList<LookInput> inputs, Func<int, string>? describe = null)
     {
         var holdout = Holdout(holdoutName);
-        IReadOnlyList<HoldoutExample>? examples = null;
-        var prepared = new List<NewLook>(inputs.Count);
-        Dictionary<string, GuardState>? streams = null;
-        for (var i = 0; i < inputs.Count; i++)
+        IReadOnlyList<HoldoutExample>? examples = inputs.Any(i => i.Predictions is not null) ? Store.Examples(holdout) : null;
+        var prepared = new NewLook[inputs.Count];
+        var failures = new AccountantException?[inputs.Count];
+        void PrepareOne(int i)
         {
             try
             {
-                var look = Prepare(holdout, inputs[i], ref examples);
-                if (inputs[i].Guard is { } guard)
-                {
-                    look = Release(holdout, look, guard, inputs[i].TrainScore, ref examples, streams ??= Streams(holdout));
-                }
-
-                prepared.Add(look);
+                prepared[i] = Prepare(holdout, inputs[i], ref examples);
             }
-            catch (AccountantException e) when (inputs.Count > 1 || describe is not null)
+            catch (AccountantException e)
             {
-                var where = describe?.Invoke(i) ?? $"look {i + 1} of {inputs.Count}";
-                throw new AccountantException(e.Kind, $"{where}: {e.Message} Nothing was recorded.", e);
+                failures[i] = e;
             }
+        }
+
+        // Large batches are checked on every core (each input on its own); the first bad input, in order, is reported.
+        if (inputs.Count >= ParallelBatch)
+        {
+            Parallel.For(0, inputs.Count, PrepareOne);
+        }
+        else
+        {
+            for (var i = 0; i < inputs.Count; i++)
+            {
+                PrepareOne(i);
+                if (failures[i] is not null) break;
+            }
+        }
+
+        // Guards keep state from one release to the next, so they are applied in order, after every input was checked.
+        Dictionary<string, GuardState>? streams = null;
+        for (var i = 0; i < inputs.Count && Array.TrueForAll(failures, f => f is null); i++)
+        {
+            if (inputs[i].Guard is not { } guard) continue;
+            try
+            {
+                prepared[i] = Release(holdout, prepared[i], guard, inputs[i].TrainScore, ref examples, streams ??= Streams(holdout));
+            }
+            catch (AccountantException e)
+            {
+                failures[i] = e;
+            }
+        }
+
+        var first = Array.FindIndex(failures, f => f is not null);
+        if (first >= 0)
+        {
+            var e = failures[first]!;
+            if (inputs.Count == 1 && describe is null) throw e;
+            var where = describe?.Invoke(first) ?? $"look {first + 1} of {inputs.Count}";
+            throw new AccountantException(e.Kind, $"{where}: {e.Message} Nothing was recorded.", e);
         }
 
         return Store.AppendLooks(holdout, prepared);
@@ -213,9 +255,15 @@ public sealed class Bookkeeper : IDisposable
         var configuration = ConfigurationJson.Canonicalize(input.Configuration);
         if (input.Search is not null) CheckName(input.Search, "search label");
         if (input.Stage is not null) CheckName(input.Stage, "stage");
-        if (input.Predictions is not null && input.Score is not null)
+        if ((input.Predictions is not null ? 1 : 0) + (input.Score is not null ? 1 : 0) + (input.Losses is not null ? 1 : 0) > 1)
         {
-            throw AccountantException.BadArguments("give either predictions or a score for a look, not both.");
+            throw AccountantException.BadArguments("give one of predictions, per-example losses or a score for a look, not several.");
+        }
+
+        if (input.Losses is { } given)
+        {
+            var (encoding, fromLosses) = LossInput.Check(holdout, given);
+            return new NewLook(configuration, fromLosses, encoding, given, input.Search, input.Stage, input.Adaptive, input.Seconds);
         }
 
         if (input.Predictions is { } predictions)
@@ -305,7 +353,22 @@ public sealed class Bookkeeper : IDisposable
     public Statement Statement(string holdoutName, StatementOptions? options = null)
     {
         var holdout = Holdout(holdoutName);
-        return StatementBuilder.Build(holdout, Store.Looks(holdout), Store.Voids(holdout), Store.ChainHead(), options, Inputs(holdout));
+        options ??= new StatementOptions();
+        PerExampleMethods.Check(holdout, options);
+        var voids = Store.Voids(holdout);
+        var inputs = Inputs(holdout);
+        if (!options.Estimates && !options.Winner)
+        {
+            // Counts and the best look only: no other look's configuration and no per-example losses are read
+            // (but the best look's, for empirical Bernstein on bounded losses).
+            var tally = Store.Tally(holdout, voids.Select(v => v.LookNumber).ToHashSet());
+            return StatementBuilder.Build(holdout, tally, voids, Store.ChainHead(), options, inputs);
+        }
+
+        // The methods that need per-example losses (--estimates, --winner) read every look.
+        var looks = Store.Looks(holdout);
+        var statement = StatementBuilder.Build(holdout, looks, voids, Store.ChainHead(), options, inputs);
+        return PerExampleMethods.Add(statement, Store, looks, voids);
     }
 
     /// <summary>What a statement on this holdout needs beyond its looks: the AUC's positives, per-example losses on demand, the openings.</summary>

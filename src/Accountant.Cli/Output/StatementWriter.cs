@@ -37,7 +37,7 @@ public static class StatementWriter
         var b = new StringBuilder();
         var h = s.Holdout;
         b.AppendLine($"Holdout      {h.Name}: {Text.Count(h.Size)} examples, metric {h.Metric.Name()}");
-        b.AppendLine($"Looks        {Text.Count(s.Looks)} counted ({s.AdaptiveLooks} adaptive, {s.VoidedLooks} voided, {s.ScoreOnlyLooks} score-only)");
+        b.AppendLine($"Looks        {Text.Count(s.Looks)} counted ({Text.Count(s.AdaptiveLooks)} adaptive, {Text.Count(s.VoidedLooks)} voided, {Text.Count(s.ScoreOnlyLooks)} score-only)");
         if (s.AdaptiveLooks > 0)
         {
             b.AppendLine($"Effective    ln M_eff = {Text.N(s.LogEffectiveLooks, 2)} (M_eff ≈ {EffectiveText(s)}): every look the guards' possible releases could have led to");
@@ -58,11 +58,20 @@ public static class StatementWriter
                 b.AppendLine($"  {line.Method,-26} {value,12} {Text.N(line.Margin),8}  {Kind(line)}{(line.Tightest ? ", tightest" : "")}");
             }
 
+            foreach (var line in s.Estimates)
+            {
+                var value = s.Options.Sided == Sidedness.TwoSided ? $"[{Text.N(line.Lower)}, {Text.N(line.Upper)}]" : Text.N(line.Bound);
+                b.AppendLine($"  {line.Method,-18} {value,12} {Text.N(line.Margin),8}  {EstimateKind(line)}");
+            }
+
             b.AppendLine();
             var primary = s.Primary!;
             var direction = h.Metric.HigherIsBetter() ? "at least" : "at most";
             b.AppendLine($"  With {Text.Percent(s.Options.Confidence)} confidence the selected configuration's true {h.Metric.Name()} is {direction} {Text.N(primary.Bound)} ({primary.Method}).");
         }
+
+        EstimatesTable(b, s);
+        WinnerTable(b, s);
 
         b.AppendLine();
         b.AppendLine(s.Budget.MaxLooks == 0
@@ -80,6 +89,68 @@ public static class StatementWriter
         b.AppendLine("Cautions");
         foreach (var c in s.Cautions) b.AppendLine($"  - {c}");
         return b.ToString();
+    }
+
+    private static string EstimateKind(EstimateLine line) => line.Asymptotic ? "estimate, asymptotic" : "estimate";
+
+    private static string EstimateHeader(Statement s, EstimateLine line) =>
+        $"Estimates, not guarantees: {Text.Count(line.Resamples)} bootstrap resamples (seed {line.Seed}) of the {Text.Count(line.Looks)} looks with per-example losses";
+
+    private static IEnumerable<string> EstimateSentences(Statement s)
+    {
+        var metric = s.Holdout.Metric.Name();
+        foreach (var line in s.Estimates)
+        {
+            if (line.Method == PerExampleMethods.BootstrapBias && s.Best is { } best)
+            {
+                var side = s.Options.Sided == Sidedness.TwoSided
+                    ? $"{Text.Percent(s.Options.Confidence)} percentile interval [{Text.N(line.Lower)}, {Text.N(line.Upper)}]"
+                    : $"{Text.Percent(s.Options.Confidence)} percentile {(s.Holdout.Metric.HigherIsBetter() ? "lower" : "upper")} end {Text.N(line.Bound)}";
+                yield return $"{line.Method}: the selected configuration's {metric} corrected for selection is {Text.N(line.Estimate ?? double.NaN)} (observed {Text.N(best.Score)}, optimism {Text.N(Math.Abs((line.Estimate ?? double.NaN) - best.Score))}); {side}.";
+            }
+            else if (line.Method == PerExampleMethods.MaxBootstrap)
+            {
+                yield return $"{line.Method}: simultaneous over all {Text.Count(line.Looks)} looks, {Text.N(line.CriticalValue ?? double.NaN, 3)} standard errors from each observed score; asymptotic, so its coverage is approximate for small holdouts.";
+            }
+        }
+
+        if (s.EstimatesNote is { } note) yield return note;
+    }
+
+    private static void EstimatesTable(StringBuilder b, Statement s)
+    {
+        if (!s.Options.Estimates) return;
+        b.AppendLine();
+        b.AppendLine(s.Estimates.Count > 0 ? EstimateHeader(s, s.Estimates[0]) : "Estimates, not guarantees: not available");
+        foreach (var sentence in EstimateSentences(s)) b.AppendLine($"  {sentence}");
+    }
+
+    private static IEnumerable<string> WinnerSentences(Statement s)
+    {
+        if (s.Winner is not { } w) yield break;
+        if (w.Unavailable is { } why)
+        {
+            yield return why;
+            yield break;
+        }
+
+        if (w.RunnerUp is { } r)
+        {
+            yield return $"best #{w.Best} against the runner-up #{r.LookB}: {Text.Count(r.Discordant)} discordant example(s), {Text.Count(r.OnlyA)} only the best gets wrong and {Text.Count(r.OnlyB)} only the runner-up; exact McNemar p = {CompareWriter.P(r.PValue)} (continuity-corrected {CompareWriter.P(r.PValueCorrected)}): {(w.RunnerUpTied ? "not distinguishable" : "the best is better")} at alpha = {Text.N(w.Alpha, 3)}.";
+        }
+
+        var tied = string.Join(", ", w.TiedWithBest.Take(20).Select(n => $"#{n}")) + (w.TiedWithBest.Count > 20 ? $", … ({Text.Count(w.TiedWithBest.Count)} in all)" : "");
+        yield return $"tied with the best (Holm's step-down over {Text.Count(w.Rivals.Count)} comparisons, alpha = {Text.N(w.Alpha, 3)}): {tied}.";
+        if (w.WithoutLosses > 0) yield return $"{Text.Count(w.WithoutLosses)} selectable look(s) carry only a score and were not compared.";
+        yield return Accountant.Comparisons.WinnerTestResult.SelectionCaution;
+    }
+
+    private static void WinnerTable(StringBuilder b, Statement s)
+    {
+        if (s.Winner is null) return;
+        b.AppendLine();
+        b.AppendLine("Winner test (McNemar 1947; Holm 1979)");
+        foreach (var sentence in WinnerSentences(s)) b.AppendLine($"  {sentence}");
     }
 
     public static string Markdown(Statement s)
@@ -106,6 +177,27 @@ public static class StatementWriter
                 b.AppendLine($"| {method} | {Text.N(line.Bound)} | {Text.N(line.Margin)} | {Kind(line)}{(line.Tightest ? ", tightest" : "")} |");
             }
 
+            foreach (var line in s.Estimates)
+            {
+                b.AppendLine($"| {line.Method} | {Text.N(line.Bound)} | {Text.N(line.Margin)} | {EstimateKind(line)} |");
+            }
+
+            b.AppendLine();
+        }
+
+        if (s.Options.Estimates)
+        {
+            b.AppendLine(s.Estimates.Count > 0 ? EstimateHeader(s, s.Estimates[0]) + ":" : "Estimates: not available.");
+            b.AppendLine();
+            foreach (var sentence in EstimateSentences(s)) b.AppendLine($"- {sentence}");
+            b.AppendLine();
+        }
+
+        if (s.Winner is not null)
+        {
+            b.AppendLine("Winner test (McNemar; Holm):");
+            b.AppendLine();
+            foreach (var sentence in WinnerSentences(s)) b.AppendLine($"- {sentence}");
             b.AppendLine();
         }
 
@@ -203,6 +295,8 @@ public static class StatementWriter
         }
 
         w.WriteEndArray();
+        WriteEstimates(w, s);
+        WriteWinner(w, s);
         w.WriteStartObject("budget");
         w.WriteNumber("tolerance", s.Budget.Tolerance);
         w.WriteString("method", s.Budget.Method);
@@ -224,6 +318,71 @@ public static class StatementWriter
         w.WriteStartArray("cautions");
         foreach (var caution in s.Cautions) w.WriteStringValue(caution);
         w.WriteEndArray();
+        w.WriteEndObject();
+    }
+
+    private static void WriteEstimates(Utf8JsonWriter w, Statement s)
+    {
+        w.WriteStartArray("estimates");
+        foreach (var line in s.Estimates)
+        {
+            w.WriteStartObject();
+            w.WriteString("method", line.Method);
+            if (line.Estimate is { } estimate) w.WriteNumber("estimate", estimate);
+            else w.WriteNull("estimate");
+            w.WriteNumber("bound", line.Bound);
+            w.WriteNumber("margin", line.Margin);
+            w.WriteBoolean("guarantee", false);
+            w.WriteBoolean("asymptotic", line.Asymptotic);
+            w.WriteNumber("lower", line.Lower);
+            w.WriteNumber("upper", line.Upper);
+            if (line.CriticalValue is { } c) w.WriteNumber("criticalValue", c);
+            w.WriteNumber("looks", line.Looks);
+            w.WriteNumber("resamples", line.Resamples);
+            w.WriteNumber("seed", line.Seed);
+            w.WriteString("reference", line.Reference);
+            w.WriteEndObject();
+        }
+
+        w.WriteEndArray();
+        w.WriteString("estimatesNote", s.EstimatesNote);
+    }
+
+    private static void WriteWinner(Utf8JsonWriter w, Statement s)
+    {
+        if (s.Winner is not { } winner)
+        {
+            w.WriteNull("winner");
+            return;
+        }
+
+        w.WriteStartObject("winner");
+        w.WriteNumber("best", winner.Best);
+        w.WriteNumber("alpha", winner.Alpha);
+        if (winner.RunnerUp is { } r)
+        {
+            w.WriteStartObject("runnerUp");
+            w.WriteNumber("look", r.LookB);
+            w.WriteNumber("onlyBest", r.OnlyA);
+            w.WriteNumber("onlyRunnerUp", r.OnlyB);
+            w.WriteNumber("pValue", r.PValue);
+            w.WriteNumber("pValueCorrected", r.PValueCorrected);
+            w.WriteBoolean("tied", winner.RunnerUpTied);
+            w.WriteEndObject();
+        }
+        else
+        {
+            w.WriteNull("runnerUp");
+        }
+
+        w.WriteStartArray("tiedWithBest");
+        foreach (var look in winner.TiedWithBest) w.WriteNumberValue(look);
+        w.WriteEndArray();
+        w.WriteNumber("comparisons", winner.Rivals.Count);
+        w.WriteNumber("withoutLosses", winner.WithoutLosses);
+        w.WriteString("unavailable", winner.Unavailable);
+        w.WriteString("caution", Accountant.Comparisons.WinnerTestResult.SelectionCaution);
+        w.WriteString("reference", PerExampleMethods.WinnerReference);
         w.WriteEndObject();
     }
 }

@@ -1,3 +1,4 @@
+using System.Buffers;
 using System.Globalization;
 using System.Security.Cryptography;
 using System.Text.Encodings.Web;
@@ -20,10 +21,14 @@ public static class Chain
 
     public static byte[] Link(byte[] previous, byte[] canonical)
     {
-        var buffer = new byte[previous.Length + canonical.Length];
-        previous.CopyTo(buffer, 0);
-        canonical.CopyTo(buffer, previous.Length);
-        return SHA256.HashData(buffer);
+        var length = previous.Length + canonical.Length;
+        var rented = length <= 1024 ? null : ArrayPool<byte>.Shared.Rent(length);
+        var buffer = rented is null ? stackalloc byte[length] : rented.AsSpan(0, length);
+        previous.CopyTo(buffer);
+        canonical.CopyTo(buffer[previous.Length..]);
+        var hash = SHA256.HashData(buffer);
+        if (rented is not null) ArrayPool<byte>.Shared.Return(rented);
+        return hash;
     }
 
     public static string Hex(byte[] hash) => Convert.ToHexStringLower(hash);
@@ -103,17 +108,21 @@ public static class Chain
     public static DateTimeOffset ParseTimestamp(string text) =>
         DateTimeOffset.ParseExact(text, "yyyy-MM-dd'T'HH:mm:ss.fffffff'Z'", CultureInfo.InvariantCulture, DateTimeStyles.AssumeUniversal);
 
+    [ThreadStatic] private static ArrayBufferWriter<byte>? t_buffer;
+    [ThreadStatic] private static Utf8JsonWriter? t_writer;
+
     private static byte[] Write(Action<Utf8JsonWriter> body)
     {
-        using var stream = new MemoryStream();
-        using (var writer = new Utf8JsonWriter(stream, Options))
-        {
-            writer.WriteStartObject();
-            writer.WriteNumber("v", 1);
-            body(writer);
-            writer.WriteEndObject();
-        }
-
-        return stream.ToArray();
+        // One buffer and writer per thread, reused: an ingest writes one entry per look.
+        var buffer = t_buffer ??= new ArrayBufferWriter<byte>(512);
+        buffer.ResetWrittenCount();
+        var writer = t_writer ??= new Utf8JsonWriter(buffer, Options);
+        writer.Reset(buffer);
+        writer.WriteStartObject();
+        writer.WriteNumber("v", 1);
+        body(writer);
+        writer.WriteEndObject();
+        writer.Flush();
+        return buffer.WrittenSpan.ToArray();
     }
 }

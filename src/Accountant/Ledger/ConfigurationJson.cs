@@ -1,3 +1,4 @@
+using System.Buffers;
 using System.Security.Cryptography;
 using System.Text;
 using System.Text.Encodings.Web;
@@ -11,6 +12,9 @@ namespace Accountant.Ledger;
 /// </summary>
 public static class ConfigurationJson
 {
+    [ThreadStatic] private static ArrayBufferWriter<byte>? t_buffer;
+    [ThreadStatic] private static Utf8JsonWriter? t_writer;
+
     private static readonly JsonWriterOptions WriterOptions = new()
     {
         Encoder = JavaScriptEncoder.UnsafeRelaxedJsonEscaping,
@@ -37,13 +41,14 @@ public static class ConfigurationJson
                 throw AccountantException.BadInput("the configuration must be a JSON object, such as {\"trainer\":\"fasttree\",\"leaves\":31}.");
             }
 
-            using var buffer = new MemoryStream();
-            using (var writer = new Utf8JsonWriter(buffer, WriterOptions))
-            {
-                Write(writer, document.RootElement);
-            }
-
-            return Encoding.UTF8.GetString(buffer.ToArray());
+            // One buffer and writer per thread, reused: canonicalization runs once per look in a batch ingest.
+            var buffer = t_buffer ??= new ArrayBufferWriter<byte>(256);
+            buffer.ResetWrittenCount();
+            var writer = t_writer ??= new Utf8JsonWriter(buffer, WriterOptions);
+            writer.Reset(buffer);
+            Write(writer, document.RootElement);
+            writer.Flush();
+            return Encoding.UTF8.GetString(buffer.WrittenSpan);
         }
     }
 
@@ -55,18 +60,21 @@ public static class ConfigurationJson
         switch (element.ValueKind)
         {
             case JsonValueKind.Object:
-                var properties = element.EnumerateObject().ToList();
-                var names = new HashSet<string>(StringComparer.Ordinal);
-                foreach (var property in properties)
+                var properties = element.EnumerateObject().ToArray();
+                var names = new string[properties.Length];
+                for (var i = 0; i < properties.Length; i++) names[i] = properties[i].Name;
+                // A stable ordinal sort; a key given twice ends up next to itself.
+                Array.Sort(names, properties, StringComparer.Ordinal);
+                for (var i = 1; i < names.Length; i++)
                 {
-                    if (!names.Add(property.Name))
+                    if (string.Equals(names[i - 1], names[i], StringComparison.Ordinal))
                     {
-                        throw AccountantException.BadInput($"the configuration names the key '{property.Name}' twice; give each hyperparameter once.");
+                        throw AccountantException.BadInput($"the configuration names the key '{names[i]}' twice; give each hyperparameter once.");
                     }
                 }
 
                 writer.WriteStartObject();
-                foreach (var property in properties.OrderBy(p => p.Name, StringComparer.Ordinal))
+                foreach (var property in properties)
                 {
                     writer.WritePropertyName(property.Name);
                     Write(writer, property.Value);

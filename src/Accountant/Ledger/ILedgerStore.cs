@@ -37,6 +37,19 @@ public interface ILedgerStore : IDisposable
 
     IReadOnlyList<LookVoid> Voids(Holdout holdout);
 
+    /// <summary>
+    /// The counts a statement needs and the best non-voided look (lowest score, or highest for accuracy; the earliest on
+    /// ties), without reading every look. Backends may compute it in the database; this default reads every look.
+    /// </summary>
+    Statements.LookTally Tally(Holdout holdout, IReadOnlySet<int> voided)
+    {
+        var looks = Looks(holdout);
+        var adaptive = looks.Count(l => l.Adaptive);
+        return new Statements.LookTally(looks.Count, adaptive, looks.Count(l => !l.HasLosses),
+            Statements.StatementBuilder.SelectBest(holdout.Metric, looks, voided),
+            adaptive == 0 ? null : looks.Select(Statements.StatementBuilder.Accounted).ToList());
+    }
+
     /// <summary>The stored per-example losses of one look, or null when only its score is known.</summary>
     byte[]? LossBytes(Holdout holdout, int lookNumber);
 

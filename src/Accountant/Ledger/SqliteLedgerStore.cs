@@ -151,7 +151,23 @@ public sealed class SqliteLedgerStore : ILedgerStore
         {
             Upgrade(version);
         }
+
+        try
+        {
+            Execute(_connection, TallyIndex);
+        }
+        catch (SqliteException e) when (e.SqliteErrorCode is 8 /* READONLY */ or 5 or 6 /* BUSY, LOCKED */)
+        {
+            // A read-only or busy ledger is still read correctly without the index, only more slowly.
+        }
     }
+
+    /// <summary>
+    /// A covering index for <see cref="Tally"/>: a statement counts a million looks from it and finds the best one without
+    /// reading the looks table. It holds no data of its own, so it is not part of the chain or the schema version; a
+    /// ledger made before it existed gets it the first time it is opened writable.
+    /// </summary>
+    private const string TallyIndex = "CREATE INDEX IF NOT EXISTS looks_by_score ON looks (holdout_id, score, number, adaptive, loss_encoding);";
 
     private void TryWal()
     {
@@ -254,6 +270,7 @@ public sealed class SqliteLedgerStore : ILedgerStore
                 recorded_at TEXT NOT NULL
             );
             """);
+        Execute(_connection, TallyIndex);
         foreach (var table in new[] { "entries", "holdouts", "looks", "voids" })
         {
             Execute(_connection, $"""
@@ -356,6 +373,7 @@ public sealed class SqliteLedgerStore : ILedgerStore
         var number = Convert.ToInt32(ScalarWith("SELECT COALESCE(MAX(number), 0) FROM looks WHERE holdout_id = $id;", ("$id", holdout.Key)), CultureInfo.InvariantCulture);
         var (sequence, previous) = Tail();
         var recorded = Chain.Timestamp(_clock.GetUtcNow());
+        var recordedAt = Chain.ParseTimestamp(recorded);
         var written = new List<Look>(looks.Count);
         using var insert = Command("""
             INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at,
@@ -363,21 +381,43 @@ public sealed class SqliteLedgerStore : ILedgerStore
             VALUES ($seq, $holdout, $number, $configuration, $digest, $score, $adaptive, $encoding, $losses, $search, $stage, $seconds, $recorded,
                     $guard, $released, $answered, $train);
             """);
-        var parameters = new[] { "$seq", "$holdout", "$number", "$configuration", "$digest", "$score", "$adaptive", "$encoding", "$losses", "$search", "$stage", "$seconds", "$recorded", "$guard", "$released", "$answered", "$train" }
-            .Select(name => insert.Parameters.Add(name, SqliteType.Text)).ToArray();
+        // Bound with their column's own type, so SQLite stores them without converting text to numbers.
+        var parameters = new (string Name, SqliteType Type)[]
+            {
+                ("$seq", SqliteType.Integer), ("$holdout", SqliteType.Integer), ("$number", SqliteType.Integer), ("$configuration", SqliteType.Text),
+                ("$digest", SqliteType.Text), ("$score", SqliteType.Real), ("$adaptive", SqliteType.Integer), ("$encoding", SqliteType.Integer),
+                ("$losses", SqliteType.Blob), ("$search", SqliteType.Text), ("$stage", SqliteType.Text), ("$seconds", SqliteType.Real), ("$recorded", SqliteType.Text),
+                ("$guard", SqliteType.Text), ("$released", SqliteType.Real), ("$answered", SqliteType.Integer), ("$train", SqliteType.Real),
+            }
+            .Select(p => insert.Parameters.Add(p.Name, p.Type)).ToArray();
         insert.Prepare();
         using var entry = EntryInsertCommand();
-        foreach (var look in looks)
+        var (entrySeq, entryKind, entryPrev, entryHash) = (entry.Parameters["$seq"], entry.Parameters["$kind"], entry.Parameters["$prev"], entry.Parameters["$hash"]);
+        // Digests and canonical entry bytes depend only on each look and its position, so they are built on every core;
+        // only the chain links (each hash covers the previous one) are computed in order.
+        var digests = new string[looks.Count];
+        var entries = new byte[looks.Count][];
+        var (firstSequence, firstNumber) = (sequence, number + 1);
+        void Canonical(int i)
         {
-            number++;
-            var digest = ConfigurationJson.Digest(look.Configuration);
-            var canonical = Chain.LookEntry(sequence, holdout.Fingerprint, number, look.Configuration, digest, look.Score, look.Adaptive,
+            var look = looks[i];
+            digests[i] = ConfigurationJson.Digest(look.Configuration);
+            entries[i] = Chain.LookEntry(firstSequence + i, holdout.Fingerprint, firstNumber + i, look.Configuration, digests[i], look.Score, look.Adaptive,
                 look.LossEncoding, look.Losses, look.Search, look.Stage, look.Seconds, recorded, look.Release);
-            var hash = Chain.Link(previous, canonical);
-            entry.Parameters["$seq"].Value = sequence;
-            entry.Parameters["$kind"].Value = "look";
-            entry.Parameters["$prev"].Value = previous;
-            entry.Parameters["$hash"].Value = hash;
+        }
+
+        if (looks.Count >= 256) Parallel.For(0, looks.Count, Canonical);
+        else for (var i = 0; i < looks.Count; i++) Canonical(i);
+        for (var i = 0; i < looks.Count; i++)
+        {
+            var look = looks[i];
+            number++;
+            var digest = digests[i];
+            var hash = Chain.Link(previous, entries[i]);
+            entrySeq.Value = sequence;
+            entryKind.Value = "look";
+            entryPrev.Value = previous;
+            entryHash.Value = hash;
             entry.ExecuteNonQuery();
 
             parameters[0].Value = sequence;
@@ -385,15 +425,12 @@ public sealed class SqliteLedgerStore : ILedgerStore
             parameters[2].Value = number;
             parameters[3].Value = look.Configuration;
             parameters[4].Value = digest;
-            parameters[5].SqliteType = SqliteType.Real;
             parameters[5].Value = look.Score;
             parameters[6].Value = look.Adaptive ? 1 : 0;
             parameters[7].Value = (int)look.LossEncoding;
-            parameters[8].SqliteType = SqliteType.Blob;
             parameters[8].Value = (object?)look.Losses ?? DBNull.Value;
             parameters[9].Value = (object?)look.Search ?? DBNull.Value;
             parameters[10].Value = (object?)look.Stage ?? DBNull.Value;
-            parameters[11].SqliteType = SqliteType.Real;
             parameters[11].Value = (object?)look.Seconds ?? DBNull.Value;
             parameters[12].Value = recorded;
             parameters[13].Value = (object?)look.Release?.Guard ?? DBNull.Value;
@@ -405,7 +442,7 @@ public sealed class SqliteLedgerStore : ILedgerStore
             parameters[16].Value = (object?)look.Release?.TrainScore ?? DBNull.Value;
             insert.ExecuteNonQuery();
 
-            written.Add(new Look(sequence, number, look.Configuration, digest, look.Score, look.LossEncoding, look.Search, look.Stage, look.Adaptive, Chain.ParseTimestamp(recorded), look.Seconds, look.Release));
+            written.Add(new Look(sequence, number, look.Configuration, digest, look.Score, look.LossEncoding, look.Search, look.Stage, look.Adaptive, recordedAt, look.Seconds, look.Release));
             previous = hash;
             sequence++;
         }
@@ -486,32 +523,87 @@ public sealed class SqliteLedgerStore : ILedgerStore
 
     public IReadOnlyList<Look> Looks(Holdout holdout) => Guarded(() =>
     {
-        using var command = Command("""
-            SELECT seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at, seconds,
-                   guard, released, holdout_answered, train_score
-            FROM looks WHERE holdout_id = $id ORDER BY number;
-            """);
+        using var command = Command($"SELECT {LookColumns} FROM looks WHERE holdout_id = $id ORDER BY number;");
         command.Parameters.AddWithValue("$id", holdout.Key);
         using var reader = command.ExecuteReader();
         var looks = new List<Look>();
-        while (reader.Read())
+        while (reader.Read()) looks.Add(ReadLook(reader));
+        return looks;
+    });
+
+    private const string LookColumns = "seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at, seconds, guard, released, holdout_answered, train_score";
+
+    private static Look ReadLook(SqliteDataReader reader) => new(
+        reader.GetInt64(0),
+        reader.GetInt32(1),
+        reader.GetString(2),
+        reader.GetString(3),
+        reader.GetDouble(4),
+        (LossEncoding)reader.GetInt32(5),
+        reader.IsDBNull(6) ? null : reader.GetString(6),
+        reader.IsDBNull(7) ? null : reader.GetString(7),
+        reader.GetInt32(8) != 0,
+        Chain.ParseTimestamp(reader.GetString(9)),
+        reader.IsDBNull(10) ? null : reader.GetDouble(10),
+        ReadRelease(reader, 11));
+
+    /// <summary>
+    /// Counts in one pass inside SQLite (only columns stored before the losses blob are read, so no blob is touched),
+    /// then reads the one best look in full.
+    /// </summary>
+    public Statements.LookTally Tally(Holdout holdout, IReadOnlySet<int> voided) => Guarded(() =>
+    {
+        using var counts = Command("""
+            SELECT count(*), total(adaptive), total(loss_encoding = 0),
+                   min(CASE WHEN number IN (SELECT look_number FROM voids WHERE holdout_id = $id) THEN NULL ELSE score END),
+                   max(CASE WHEN number IN (SELECT look_number FROM voids WHERE holdout_id = $id) THEN NULL ELSE score END)
+            FROM looks WHERE holdout_id = $id;
+            """);
+        counts.Parameters.AddWithValue("$id", holdout.Key);
+        int looks, adaptive, scoreOnly;
+        double? bestScore;
+        using (var reader = counts.ExecuteReader())
         {
-            looks.Add(new Look(
-                reader.GetInt64(0),
-                reader.GetInt32(1),
-                reader.GetString(2),
-                reader.GetString(3),
-                reader.GetDouble(4),
-                (LossEncoding)reader.GetInt32(5),
-                reader.IsDBNull(6) ? null : reader.GetString(6),
-                reader.IsDBNull(7) ? null : reader.GetString(7),
-                reader.GetInt32(8) != 0,
-                Chain.ParseTimestamp(reader.GetString(9)),
-                reader.IsDBNull(10) ? null : reader.GetDouble(10),
-                ReadRelease(reader, 11)));
+            reader.Read();
+            looks = reader.GetInt32(0);
+            adaptive = (int)reader.GetDouble(1);
+            scoreOnly = (int)reader.GetDouble(2);
+            var column = holdout.Metric.HigherIsBetter() ? 4 : 3;
+            bestScore = reader.IsDBNull(column) ? null : reader.GetDouble(column);
         }
 
-        return looks;
+        Look? best = null;
+        if (bestScore is { } score)
+        {
+            using var pick = Command($"""
+                SELECT {LookColumns} FROM looks
+                WHERE holdout_id = $id AND score = $score AND number NOT IN (SELECT look_number FROM voids WHERE holdout_id = $id)
+                ORDER BY number LIMIT 1;
+                """);
+            pick.Parameters.AddWithValue("$id", holdout.Key);
+            pick.Parameters.AddWithValue("$score", score);
+            using var row = pick.ExecuteReader();
+            best = row.Read() ? ReadLook(row) : null;
+        }
+
+        // Adaptive accounting needs the order of adaptive flags and guards; read those two columns only when it applies.
+        List<Guards.AccountedLook>? pattern = null;
+        if (adaptive > 0)
+        {
+            pattern = new List<Guards.AccountedLook>(looks);
+            var specs = new Dictionary<string, Guards.GuardSpec>(StringComparer.Ordinal);
+            using var flags = Command("SELECT adaptive, guard FROM looks WHERE holdout_id = $id ORDER BY number;");
+            flags.Parameters.AddWithValue("$id", holdout.Key);
+            using var reader = flags.ExecuteReader();
+            while (reader.Read())
+            {
+                var guard = reader.IsDBNull(1) ? Guards.GuardSpec.Exact
+                    : specs.TryGetValue(reader.GetString(1), out var known) ? known : specs[reader.GetString(1)] = Guards.GuardSpec.Parse(reader.GetString(1));
+                pattern.Add(new Guards.AccountedLook(reader.GetInt32(0) != 0, guard));
+            }
+        }
+
+        return new Statements.LookTally(looks, adaptive, scoreOnly, best, pattern);
     });
 
     /// <summary>Reads the four release columns starting at <paramref name="first"/>; null when the look had no guard.</summary>

@@ -14,6 +14,18 @@ public sealed record StatementOptions
     public Sidedness Sided { get; init; } = Sidedness.OneSided;
 
     public double Delta => 1.0 - Confidence;
+
+    /// <summary>Add the bootstrap estimates (bootstrap-bias, max-bootstrap); they read every look's per-example losses.</summary>
+    public bool Estimates { get; init; }
+
+    /// <summary>Add the winner test (McNemar best against runner-up, Holm tie set); it reads every look's per-example losses.</summary>
+    public bool Winner { get; init; }
+
+    /// <summary>Bootstrap resamples B for the estimates.</summary>
+    public int Resamples { get; init; } = Accountant.Estimates.BootstrapSettings.DefaultResamples;
+
+    /// <summary>The bootstrap's seed: the same seed reproduces the same estimates.</summary>
+    public ulong Seed { get; init; } = Accountant.Estimates.BootstrapSettings.DefaultSeed;
 }
 
 /// <summary>One method's corrected bound on the selected look's true score.</summary>
@@ -34,6 +46,14 @@ public sealed record Budget(double Tolerance, string Method, long MaxLooks, long
 
     public bool Overused => LooksUsed > MaxLooks;
 }
+
+/// <summary>What a statement needs to know about a holdout's looks: how many, of which kinds, and the best one.</summary>
+/// <param name="Looks">Every look (M), voided ones too.</param>
+/// <param name="Adaptive">Looks marked adaptive.</param>
+/// <param name="ScoreOnly">Looks without per-example losses.</param>
+/// <param name="Best">The best non-voided look (the earliest on ties), or null.</param>
+/// <param name="Pattern">Every look's adaptive flag and guard, in order: needed (and read) only when some look is adaptive.</param>
+public sealed record LookTally(int Looks, int Adaptive, int ScoreOnly, Look? Best, IReadOnlyList<Guards.AccountedLook>? Pattern = null);
 
 /// <summary>A warning with a stable code that scripts can match.</summary>
 public sealed record StatementWarning(string Code, string Message);
@@ -58,6 +78,15 @@ public sealed record Statement(
 {
     /// <summary>How many times the sealed test set was opened.</summary>
     public int TestOpenings => Openings?.Count ?? 0;
+
+    /// <summary>The bootstrap estimates, when asked for (<see cref="StatementOptions.Estimates"/>): never guarantees.</summary>
+    public IReadOnlyList<EstimateLine> Estimates { get; init; } = [];
+
+    /// <summary>Why estimates that were asked for could not be computed, or what they left out; null otherwise.</summary>
+    public string? EstimatesNote { get; init; }
+
+    /// <summary>The winner test, when asked for (<see cref="StatementOptions.Winner"/>).</summary>
+    public Accountant.Comparisons.WinnerTestResult? Winner { get; init; }
 
     /// <summary>The tightest guarantee's line (bounds are listed tightest first).</summary>
     public BoundLine? Primary => Bounds.Count > 0 ? Bounds[0] : null;

@@ -24,23 +24,41 @@ public static class StatementBuilder
     public static Statement Build(Holdout holdout, IReadOnlyList<Look> looks, IReadOnlyList<LookVoid> voids, string? chainHead,
         StatementOptions? options = null, StatementInputs? inputs = null)
     {
+        var voided = voids.Select(v => v.LookNumber).ToHashSet();
+        var adaptive = looks.Count(l => l.Adaptive);
+        var pattern = adaptive == 0 ? null : looks.Select(Accounted).ToList();
+        var tally = new LookTally(looks.Count, adaptive, looks.Count(l => !l.HasLosses), SelectBest(holdout.Metric, looks, voided), pattern);
+        return Build(holdout, tally, voids, chainHead, options, inputs);
+    }
+
+    /// <summary>How the adaptive accounting sees a look: its flag and the guard its value went through (exact when none).</summary>
+    public static AccountedLook Accounted(Look look) => new(look.Adaptive, look.Release is { } r ? GuardSpec.Parse(r.Guard) : GuardSpec.Exact);
+
+    /// <summary>The same statement from the counts alone, so that a ledger of a million looks need not be read look by look.</summary>
+    public static Statement Build(Holdout holdout, LookTally tally, IReadOnlyList<LookVoid> voids, string? chainHead,
+        StatementOptions? options = null, StatementInputs? inputs = null)
+    {
         options ??= new StatementOptions();
         inputs ??= StatementInputs.None;
         Require.Delta(options.Delta);
         Require.Tolerance(options.Tolerance);
 
         var voided = voids.Select(v => v.LookNumber).ToHashSet();
-        var best = SelectBest(holdout.Metric, looks, voided);
-        var m = looks.Count;
-        var accounted = looks.Select(l => new AccountedLook(l.Adaptive, l.Release is { } r ? GuardSpec.Parse(r.Guard) : GuardSpec.Exact)).ToList();
-        var adaptive = looks.Count(l => l.Adaptive);
+        var best = tally.Best;
+        var m = tally.Looks;
+        var adaptive = tally.Adaptive;
+        if (adaptive > 0 && tally.Pattern is null)
+        {
+            throw new InvalidOperationException("a tally with adaptive looks must carry their pattern.");
+        }
+
         var space = inputs.Space ?? DefaultSpace(holdout, inputs.Positives);
-        var logLooks = m == 0 ? 0.0 : adaptive == 0 ? Math.Log(m) : AdaptiveAccounting.LogEffectiveLooks(accounted, space);
+        var logLooks = m == 0 ? 0.0 : adaptive == 0 ? Math.Log(m) : AdaptiveAccounting.LogEffectiveLooks(tally.Pattern!, space);
         var bounds = best is null ? [] : BoundsFor(holdout, best, logLooks, adaptive > 0, options, inputs);
         var budget = BudgetFor(holdout, best?.Score, logLooks, options, inputs.Positives);
-        var scoreOnly = looks.Count(l => !l.HasLosses);
-        var unguarded = adaptive > 0 && AdaptiveAccounting.HasUnguardedAdaptivity(accounted);
-        var warnings = Warnings(holdout, looks, voided.Count, scoreOnly, adaptive, unguarded, logLooks, best, bounds, budget, options);
+        var scoreOnly = tally.ScoreOnly;
+        var unguarded = adaptive > 0 && AdaptiveAccounting.HasUnguardedAdaptivity(tally.Pattern!);
+        var warnings = Warnings(holdout, m, voided.Count, scoreOnly, adaptive, unguarded, logLooks, best, bounds, budget, options);
         var openings = inputs.Openings ?? [];
         if (openings.Count > 1)
         {
@@ -205,18 +223,18 @@ public static class StatementBuilder
         return new Budget(options.Tolerance, HoeffdingUnion.Name, HoeffdingUnion.MaxLooks(holdout.Size, options.Tolerance, options.Delta, width, options.Sided), used);
     }
 
-    private static List<StatementWarning> Warnings(Holdout holdout, IReadOnlyList<Look> looks, int voided, int scoreOnly, int adaptive, bool unguarded,
+    private static List<StatementWarning> Warnings(Holdout holdout, int lookCount, int voided, int scoreOnly, int adaptive, bool unguarded,
         double logLooks, Look? best, IReadOnlyList<BoundLine> bounds, Budget budget, StatementOptions options)
     {
         var warnings = new List<StatementWarning>();
         string F(double x) => x.ToString("0.####", CultureInfo.InvariantCulture);
-        if (looks.Count == 0)
+        if (lookCount == 0)
         {
             warnings.Add(new("no-looks", $"holdout '{holdout.Name}' has no looks yet; record one with 'accountant record {holdout.Name} ...'."));
         }
         else if (best is null)
         {
-            warnings.Add(new("all-voided", $"every look on holdout '{holdout.Name}' is voided, so there is no selected configuration; the {looks.Count} voided looks still count."));
+            warnings.Add(new("all-voided", $"every look on holdout '{holdout.Name}' is voided, so there is no selected configuration; the {lookCount} voided looks still count."));
         }
 
         if (unguarded)
@@ -229,25 +247,25 @@ public static class StatementBuilder
         {
             var margin = bounds.Count > 0 ? $" the margin is now {F(bounds[0].Margin)}," : "";
             var effective = logLooks < 30 ? Math.Round(Math.Exp(logLooks)).ToString("0", CultureInfo.InvariantCulture) : "10^" + (logLooks / Math.Log(10)).ToString("0.#", CultureInfo.InvariantCulture);
-            var counted = adaptive > 0 ? $"{effective} effective looks (from {looks.Count} recorded, {adaptive} adaptive)" : $"{looks.Count} looks";
+            var counted = adaptive > 0 ? $"{effective} effective looks (from {lookCount} recorded, {adaptive} adaptive)" : $"{lookCount} looks";
             warnings.Add(budget.MaxLooks == 0
                 ? new("holdout-overused", $"even a single look's margin exceeds the tolerance {F(options.Tolerance)} at confidence {F(options.Confidence)} on {holdout.Size} examples:{margin} so this holdout is too small to tell configurations apart to that tolerance; 'accountant plan' gives the size needed.")
                 : new("holdout-overused", $"{counted} exceed the budget of {budget.MaxLooks} at tolerance {F(options.Tolerance)} and confidence {F(options.Confidence)}:{margin} so this holdout can no longer tell configurations apart to that tolerance; collect fresh validation data for further comparisons."));
         }
 
-        if (looks.Count == 1)
+        if (lookCount == 1)
         {
             warnings.Add(new("single-look", "only one look is recorded, so no correction for comparisons was applied; if other configurations were tried on this holdout, record them too, or the bound is too optimistic."));
         }
 
         if (scoreOnly > 0)
         {
-            warnings.Add(new("score-only-looks", $"{scoreOnly} of {looks.Count} looks carry only a score, without per-example losses; the guaranteed bounds still hold, but paired tests and bootstrap methods cannot use those looks (record predictions to enable them)."));
+            warnings.Add(new("score-only-looks", $"{scoreOnly} of {lookCount} looks carry only a score, without per-example losses; the guaranteed bounds still hold, but paired tests and bootstrap methods cannot use those looks (record predictions to enable them)."));
         }
 
         if (voided > 0)
         {
-            warnings.Add(new("voided-looks", $"{voided} voided look(s) cannot be selected but still count toward the {looks.Count} looks: a look cannot be taken back."));
+            warnings.Add(new("voided-looks", $"{voided} voided look(s) cannot be selected but still count toward the {lookCount} looks: a look cannot be taken back."));
         }
 
         return warnings;

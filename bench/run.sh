@@ -1,0 +1,75 @@
+#!/usr/bin/env bash
+# Benchmarks for Accountant, run by hand (not part of 'dotnet test' or CI): bash bench/run.sh
+# Each figure is a ratio of two things measured side by side in this one run, on this machine.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+export DOTNET_CLI_TELEMETRY_OPTOUT=1 DOTNET_NOLOGO=1
+WORK="${BENCH_WORK:-$(mktemp -d /tmp/accountant-bench.XXXXXX)}"
+mkdir -p "$WORK"
+
+# NumPy as a practitioner has it on Debian, with OpenBLAS (without it NumPy falls back to the reference BLAS).
+if ! /usr/bin/python3 -c 'import numpy' 2>/dev/null || [ ! -e /usr/lib/x86_64-linux-gnu/openblas-pthread/libblas.so.3 ]; then
+  apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq python3-numpy libopenblas0-pthread >/dev/null
+fi
+PY=/usr/bin/python3
+
+echo "== build (Release; the CLI published ReadyToRun, as a tool is shipped)"
+dotnet build bench/Accountant.Bench -c Release -v q -nologo | grep -E "error|Warn" || true
+dotnet publish src/Accountant.Cli -c Release -r linux-x64 --self-contained false -p:PublishReadyToRun=true -o "$WORK/cli" -v q -nologo | grep -E "error" || true
+BENCH=bench/Accountant.Bench/bin/Release/net10.0/Accountant.Bench
+CLI="$WORK/cli/accountant"
+
+value() { grep "^$1 " "$2" | awk '{print $2}'; }
+ratio() { $PY -c "print(f'{float($1)/float($2):.3f}')"; }
+# Median wall time in milliseconds of a command run 7 times (after one untimed run).
+median_ms() {
+  "$@" >/dev/null 2>&1 || true
+  for _ in 1 2 3 4 5 6 7; do
+    local start end; start=$(date +%s%N); "$@" >/dev/null 2>&1; end=$(date +%s%N)
+    echo $(( (end - start) / 1000000 ))
+  done | sort -n | sed -n 4p
+}
+
+echo
+echo "== machine"
+echo "cpu: $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | xargs), $(nproc) cores, load average $(cut -d' ' -f1-3 /proc/loadavg)"
+$BENCH peak | tee "$WORK/peak.txt"
+echo "blas: $(readlink -f /usr/lib/x86_64-linux-gnu/libblas.so.3)"
+
+echo
+echo "== bootstrap: K = 1,000 looks, n = 10,000 examples, B = 1,000 resamples (bootstrap-bias and max-bootstrap)"
+$BENCH bootstrap 1000 10000 1000 1 "$WORK/losses.u8" | tee "$WORK/bootstrap.txt"
+$PY bench/bootstrap_numpy.py 1000 10000 1000 1 "$WORK/losses.u8" | tee "$WORK/numpy.txt"
+ours=$(value accountant_bootstrap_seconds "$WORK/bootstrap.txt"); theirs=$(value numpy_bootstrap_seconds "$WORK/numpy.txt")
+peak=$(value fma_peak_gflops "$WORK/peak.txt")
+echo "RATIO bootstrap time, accountant / NumPy: $(ratio "$ours" "$theirs")  (target <= 1.0)"
+echo "RATE  NumPy matrix product: $(value numpy_matmul_gflops "$WORK/numpy.txt") GFLOP/s = $(ratio "$(value numpy_matmul_gflops "$WORK/numpy.txt")" "$peak") of the FMA peak"
+echo "RATE  accountant engine: $(value accountant_equivalent_gflops "$WORK/bootstrap.txt") GFLOP/s-equivalent (2·K·n·B multiply-adds done as popcounts) = $(ratio "$(value accountant_equivalent_gflops "$WORK/bootstrap.txt")" "$peak") of the FMA peak"
+
+echo
+echo "== ledger ingest: batch API against raw prepared inserts of the same rows in one transaction"
+$BENCH ingest "$WORK/ingest" | tee "$WORK/ingest.txt"
+echo "RATIO ingest, score-only looks, library / raw: $(value ingest_score_only_ratio "$WORK/ingest.txt")  (target >= 0.7)"
+echo "RATIO ingest, looks with a 100,000-example bitset, library / raw: $(value ingest_bitset_ratio "$WORK/ingest.txt")  (target >= 0.7)"
+
+echo
+echo "== accountant statement on 1,000,000 looks, and record of one look, from separate processes"
+[ -f "$WORK/million.db" ] || $BENCH ledger-scores "$WORK/million.db" 1000000
+$BENCH ledger-bitsets "$WORK/wide.db" 1000 10000 >/dev/null
+"$CLI" statement big --ledger "$WORK/million.db" >/dev/null   # first open builds the tally index of an old ledger; not timed
+start_ms=$(median_ms "$CLI" --version)
+statement_ms=$(median_ms "$CLI" statement big --ledger "$WORK/million.db")
+record_ms=$(median_ms "$CLI" record wide --configuration '{"bench":1}' --predictions "$WORK/wide.predictions.csv" --ledger "$WORK/wide.db")
+echo "process start alone (accountant --version): ${start_ms} ms"
+echo "statement, 1,000,000 looks: ${statement_ms} ms, work beyond start $((statement_ms - start_ms)) ms  (target < 500 ms)"
+echo "record, one look with 10,000 predictions: ${record_ms} ms, beyond start $((record_ms - start_ms)) ms  (target <= 100 ms)"
+
+echo
+echo "== peak memory of the bootstrap run (statement --estimates --winner on 1,000 looks x 10,000 examples)"
+/usr/bin/time -f "%M" -o "$WORK/rss-version.txt" "$CLI" --version >/dev/null
+/usr/bin/time -f "%M" -o "$WORK/rss.txt" "$CLI" statement wide --estimates --winner --ledger "$WORK/wide.db" >/dev/null
+loss_kb=$(( $(value loss_bytes "$WORK/bootstrap.txt") / 1024 ))
+echo "loss data read: ${loss_kb} KB; peak resident memory: $(cat "$WORK/rss.txt") KB (process start alone: $(cat "$WORK/rss-version.txt") KB)"
+echo "RATIO peak memory beyond start / loss data: $(ratio "$(( $(cat "$WORK/rss.txt") - $(cat "$WORK/rss-version.txt") ))" "$loss_kb")"
+echo
+echo "work files in $WORK"

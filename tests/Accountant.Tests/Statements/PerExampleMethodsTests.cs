@@ -1,0 +1,107 @@
+using Accountant.Bounds;
+using Accountant.Ledger;
+using Accountant.Statements;
+using Accountant.Tests.Support;
+
+namespace Accountant.Tests.Statements;
+
+public class PerExampleMethodsTests
+{
+    /// <summary>A store that counts how often per-example losses are read.</summary>
+    private sealed class CountingStore(ILedgerStore inner) : ILedgerStore
+    {
+        public int LossReads { get; private set; }
+        public string Location => inner.Location;
+        public Holdout AddHoldout(string name, Metric metric, LossRange range, IReadOnlyList<HoldoutExample> sortedExamples) => inner.AddHoldout(name, metric, range, sortedExamples);
+        public Holdout? FindHoldout(string name) => inner.FindHoldout(name);
+        public IReadOnlyList<Holdout> Holdouts() => inner.Holdouts();
+        public IReadOnlyList<HoldoutExample> Examples(Holdout holdout) => inner.Examples(holdout);
+        public IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks) => inner.AppendLooks(holdout, looks);
+        public LookVoid AppendVoid(Holdout holdout, int lookNumber, string reason) => inner.AppendVoid(holdout, lookNumber, reason);
+        public TestOpening AppendOpening(Holdout holdout, int lookNumber, int testSize, string testFingerprint, double testScore) => inner.AppendOpening(holdout, lookNumber, testSize, testFingerprint, testScore);
+        public IReadOnlyList<TestOpening> Openings(Holdout holdout) => inner.Openings(holdout);
+        public IReadOnlyList<Look> Looks(Holdout holdout) => inner.Looks(holdout);
+        public IReadOnlyList<LookVoid> Voids(Holdout holdout) => inner.Voids(holdout);
+        public byte[]? LossBytes(Holdout holdout, int lookNumber) { LossReads++; return inner.LossBytes(holdout, lookNumber); }
+        public string? ChainHead() => inner.ChainHead();
+        public ChainReport Verify(string? expectedHead = null) => inner.Verify(expectedHead);
+        public void Dispose() => inner.Dispose();
+    }
+
+    [Fact]
+    public void A_statement_reads_per_example_losses_only_when_a_method_needs_them()
+    {
+        using var temp = new TempLedger();
+        var examples = TempLedger.Examples(200);
+        using (var book = temp.Create())
+        {
+            book.RegisterHoldout("v", examples);
+            for (var k = 0; k < 5; k++) book.Record("v", $$"""{"k":{{k}}}""", TempLedger.Predictions(examples, 20 + k));
+            book.Void("v", 2, "a mistake");
+        }
+
+        var store = new CountingStore(SqliteLedgerStore.Open(temp.Path));
+        using var counted = new Bookkeeper(store);
+        var plain = counted.Statement("v");
+        Assert.Equal(0, store.LossReads);
+        Assert.Empty(plain.Estimates);
+        Assert.Null(plain.Winner);
+
+        var full = counted.Statement("v", new StatementOptions { Estimates = true, Winner = true, Resamples = 200, Seed = 3 });
+        Assert.Equal(5, store.LossReads);
+        Assert.Equal(2, full.Estimates.Count);
+        Assert.All(full.Estimates, e => Assert.Equal(5, e.Looks));
+        // Predictions wrong on a prefix of the examples: look 1 (20 errors) is nested in every other look, so its
+        // rivals disagree with it only where they err more. Look 2 is voided and is not compared.
+        Assert.Equal(1, full.Best!.Number);
+        Assert.Equal(3, full.Winner!.Rivals.Count);
+        Assert.DoesNotContain(full.Winner.Rivals, r => r.Look == 2);
+        Assert.Equal(3, full.Winner.RunnerUp!.LookB);
+        Assert.Equal(0, full.Winner.RunnerUp.OnlyA);
+        Assert.Equal(2, full.Winner.RunnerUp.OnlyB);
+    }
+
+    [Fact]
+    public void Accuracy_estimates_are_lower_bounds_on_the_accuracy_scale()
+    {
+        using var temp = new TempLedger();
+        var examples = TempLedger.Examples(300);
+        using var book = temp.Create();
+        book.RegisterHoldout("v", examples, Metric.Accuracy);
+        for (var k = 0; k < 4; k++) book.Record("v", $$"""{"k":{{k}}}""", TempLedger.Predictions(examples, 30 + 5 * k));
+        var statement = book.Statement("v", new StatementOptions { Estimates = true, Resamples = 300 });
+        Assert.Equal(0.9, statement.Best!.Score, 12);
+        foreach (var line in statement.Estimates)
+        {
+            Assert.True(line.Bound < 0.9, $"{line.Method} {line.Bound}");
+            Assert.Equal(line.Lower, line.Bound);
+            Assert.Equal(0.9 - line.Bound, line.Margin, 12);
+        }
+
+        var bbc = statement.Estimates.Single(e => e.Method == PerExampleMethods.BootstrapBias);
+        Assert.InRange(bbc.Estimate!.Value, 0.8, 0.95);
+    }
+}
+
+public class LossInputTests
+{
+    [Fact]
+    public void Losses_given_directly_are_stored_with_their_score_and_bad_ones_are_refused_with_nothing_written()
+    {
+        using var temp = new TempLedger();
+        using var book = temp.Create();
+        book.RegisterHoldout("v", TempLedger.Examples(10));
+        var look = book.RecordMany("v", [new LookInput { Configuration = "{}", Losses = [0b0000_0111, 0b01] }])[0];
+        Assert.Equal(0.4, look.Score, 12);
+        Assert.Equal([0b0000_0111, 0b01], book.Store.LossBytes(book.Holdout("v"), 1));
+        var head = book.Store.ChainHead();
+        var tooShort = Assert.Throws<AccountantException>(() => book.RecordMany("v", [new LookInput { Configuration = "{}", Losses = [1] }]));
+        Assert.Equal(ErrorKind.BadInput, tooShort.Kind);
+        var spare = Assert.Throws<AccountantException>(() => book.RecordMany("v", [new LookInput { Configuration = "{}", Losses = [0, 0b100] }]));
+        Assert.Contains("spare bits", spare.Message);
+        var both = Assert.Throws<AccountantException>(() => book.RecordMany("v", [new LookInput { Configuration = "{}", Losses = [0, 0], Score = 0.1 }]));
+        Assert.Equal(ErrorKind.BadArguments, both.Kind);
+        Assert.Equal(head, book.Store.ChainHead());
+        Assert.True(book.Verify().Valid);
+    }
+}
