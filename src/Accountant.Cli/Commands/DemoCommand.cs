@@ -24,11 +24,31 @@ internal sealed class DemoCommand : Command
         var strategy = new Option<string>("--strategy") { Description = "random (configurations fixed in advance) or refine (adaptive: local search around the best value told).", DefaultValueFactory = _ => "random" };
         strategy.AcceptOnlyFromAmong("random", "refine");
         var guard = new Option<string?>("--guard") { Description = "Release scores to the search through a guard: exact, rounded:D, ladder:STEP or thresholdout:T,SIGMA,BUDGET." };
+        var export = new Option<string?>("--export") { Description = "Write the scenario's days to this CSV (with --export-rows of them) and stop: data for 'accountant search'." };
+        var exportRows = new Option<int>("--export-rows") { Description = "How many days --export writes.", DefaultValueFactory = _ => 5000 };
         var format = Common.Format("table", "json", "markdown");
-        foreach (var option in new Option[] { looks, seed, strategy, guard, trainingRows, validationRows, freshRows, confidence, tolerance, twoSided, quiet, format }) Options.Add(option);
+        foreach (var option in new Option[] { export, exportRows, looks, seed, strategy, guard, trainingRows, validationRows, freshRows, confidence, tolerance, twoSided, quiet, format }) Options.Add(option);
 
         SetAction(r => Common.Guard(env, () =>
         {
+            if (r.GetValue(export) is { } csv)
+            {
+                var rows = r.GetValue(exportRows);
+                if (rows < 10) throw AccountantException.BadArguments("--export-rows must be at least 10.");
+                try
+                {
+                    using var writer = new StreamWriter(csv, append: false, new System.Text.UTF8Encoding(false));
+                    BakeryScenario.WriteCsv(BakeryScenario.Generate(rows, r.GetValue(seed)), writer);
+                }
+                catch (Exception e) when (e is IOException or UnauthorizedAccessException)
+                {
+                    throw AccountantException.BadArguments($"cannot write '{csv}' ({e.Message.TrimEnd('.')}); check the folder.");
+                }
+
+                env.Output.WriteLine($"wrote {Text.Count(rows)} invented bakery days to {csv} (label column sold_out)");
+                return ExitCodes.Success;
+            }
+
             var options = new DemoOptions
             {
                 Looks = r.GetValue(looks),

@@ -96,6 +96,17 @@ public static class BakeryScenario
         return days;
     }
 
+    /// <summary>Writes days as CSV with a header (the label column is <c>sold_out</c>, yes or no).</summary>
+    public static void WriteCsv(IEnumerable<BakeryDay> days, TextWriter writer)
+    {
+        writer.WriteLine("day,weekday,temperature,rain,street_event,loaves,price,hours_open,sold_out");
+        foreach (var d in days)
+        {
+            writer.WriteLine(string.Create(System.Globalization.CultureInfo.InvariantCulture,
+                $"{d.Id},{d.Weekday},{d.Temperature},{d.Rain},{d.StreetEvent},{d.Loaves},{d.Price},{d.HoursOpen},{(d.Label ? "yes" : "no")}"));
+        }
+    }
+
     /// <summary>The Bayes error of a sample: the mean of min(p, 1 − p), the error of the best possible classifier.</summary>
     public static double BayesError(IEnumerable<BakeryDay> days) => days.Average(d => Math.Min(d.TrueProbability, 1 - d.TrueProbability));
 }
