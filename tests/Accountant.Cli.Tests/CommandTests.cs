@@ -283,7 +283,7 @@ public sealed class CommandTests : IDisposable
         Assert.Equal(ExitCodes.Success, intro.Exit);
         Assert.Contains("accountant demo", intro.Out);
         Assert.Contains("accountant statement", intro.Out);
-        foreach (var verb in new[] { "init", "record", "import", "statement", "budget", "plan", "void", "verify", "simulate", "demo" })
+        foreach (var verb in new[] { "init", "record", "import", "statement", "budget", "plan", "void", "verify", "search", "unseal", "plot", "simulate", "demo" })
         {
             Assert.Contains("Example: accountant " + verb, _cli.RunRaw([verb, "--help"]).Out);
         }
@@ -397,5 +397,45 @@ public sealed class SimulateCommandTests : IDisposable
         Assert.Equal(ExitCodes.BadArguments, _cli.Run("simulate", "--true-error", "0.3:0.1", "--no-ledger").Exit);
         Assert.Equal(ExitCodes.BadArguments, _cli.Run("simulate", "--correlation", "1", "--no-ledger").Exit);
         Assert.Equal(ExitCodes.BadArguments, _cli.Run("simulate", "--guard", "ladder:2", "--no-ledger").Exit);
+    }
+}
+
+public sealed class SearchCommandTests : IDisposable
+{
+    private readonly CliHarness _cli = new();
+
+    public void Dispose() => _cli.Dispose();
+
+    [Fact]
+    public void Search_unseal_and_plot_from_the_command_line()
+    {
+        var data = Path.Combine(_cli.Folder, "bakery.csv");
+        Assert.Equal(ExitCodes.Success, _cli.Run("demo", "--export", data, "--export-rows", "400", "--no-ledger").Exit);
+        var search = _cli.Run("search", data, "--label", "sold_out", "--id-column", "day", "--looks", "3", "--format", "json", "--plot", Path.Combine(_cli.Folder, "s.png"));
+        Assert.Equal(ExitCodes.Success, search.Exit);
+        Assert.Contains("task inferred", search.Err);
+        var statement = System.Text.Json.JsonDocument.Parse(search.Out).RootElement;
+        Assert.Equal("bakery-validation", statement.GetProperty("holdout").GetProperty("name").GetString());
+        Assert.Equal(3, statement.GetProperty("looks").GetInt32());
+        Assert.True(File.Exists(Path.Combine(_cli.Folder, "s.png")));
+
+        var unseal = _cli.Run("unseal", "bakery-validation", "--format", "json");
+        Assert.Equal(ExitCodes.Success, unseal.Exit);
+        var opened = System.Text.Json.JsonDocument.Parse(unseal.Out).RootElement;
+        Assert.Equal("bakery-validation", opened.GetProperty("holdout").GetProperty("name").GetString());
+        Assert.Equal(statement.GetProperty("best").GetProperty("look").GetInt32(), opened.GetProperty("look").GetInt32());
+        Assert.Equal(statement.GetProperty("best").GetProperty("observed").GetDouble(), opened.GetProperty("validation").GetProperty("observed").GetDouble());
+        Assert.InRange(opened.GetProperty("test").GetProperty("observed").GetDouble(), 0, 1);
+        Assert.Equal(1, opened.GetProperty("testOpenings").GetInt32());
+        Assert.NotEmpty(opened.GetProperty("bounds").EnumerateArray());
+        var again = _cli.Run("unseal", "bakery-validation");
+        Assert.Contains("test-reopened", again.Out);
+        Assert.Contains("opened 2 times", again.Err);
+
+        Assert.Equal(ExitCodes.Success, _cli.Run("plot", "bakery-validation", "--out", Path.Combine(_cli.Folder, "p.svg")).Exit);
+        Assert.Equal(ExitCodes.BadArguments, _cli.Run("plot", "bakery-validation", "--out", Path.Combine(_cli.Folder, "p.bmp")).Exit);
+        Assert.Equal(ExitCodes.BadInput, _cli.Run("search", data, "--label", "nope").Exit);
+        Assert.Equal(ExitCodes.BadArguments, _cli.Run("search", data).Exit);
+        Assert.Contains("\"trainers\"", _cli.Run("search", "--print-space", "--task", "regression", "--no-ledger").Out);
     }
 }
