@@ -24,6 +24,7 @@ public static class AccountantCli
             new SearchCommand(env),
             new UnsealCommand(env),
             new PlotCommand(env),
+            new ReportCommand(env),
             new SimulateCommand(env),
             new DemoCommand(env),
         };

@@ -12,7 +12,7 @@ internal sealed class StatementCommand : Command
         var confidence = Common.Confidence();
         var tolerance = Common.Tolerance(0.02);
         var twoSided = Common.TwoSided();
-        var format = Common.Format("table", "json", "markdown");
+        var format = Common.Format("table", "json", "markdown", "latex");
         var estimates = new Option<bool>("--estimates") { Description = "Add the bootstrap estimates bootstrap-bias and max-bootstrap (estimates, not guarantees; reads every look's per-example losses)." };
         var winner = new Option<bool>("--winner") { Description = "Add the winner test: exact McNemar of the best look against the runner-up, and the looks Holm's step-down cannot tell from the best." };
         var resamples = new Option<int>("--resamples") { Description = "Bootstrap resamples B for --estimates.", DefaultValueFactory = _ => Accountant.Estimates.BootstrapSettings.DefaultResamples };

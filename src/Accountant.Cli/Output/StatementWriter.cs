@@ -18,6 +18,7 @@ public static class StatementWriter
     {
         "json" => Json(statement),
         "markdown" => Markdown(statement),
+        "latex" => LatexWriter.Render(statement),
         _ => Table(statement),
     };
 
