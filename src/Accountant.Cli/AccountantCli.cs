@@ -82,7 +82,7 @@ public static class AccountantCli
     }
 }
 
-/// <summary>The action of <c>--version</c>: the informational version of the command-line assembly.</summary>
+/// <summary>The action of <c>--version</c>: the informational version of the command-line assembly and the ledger schema it writes.</summary>
 internal sealed class PrintVersion(CliEnvironment env) : System.CommandLine.Invocation.SynchronousCommandLineAction
 {
     public static string Version { get; } =
@@ -91,7 +91,7 @@ internal sealed class PrintVersion(CliEnvironment env) : System.CommandLine.Invo
 
     public override int Invoke(ParseResult parseResult)
     {
-        env.Output.WriteLine(Version);
+        env.Output.WriteLine($"{Version} (ledger schema {Accountant.Ledger.SqliteLedgerStore.SchemaVersion})");
         return ExitCodes.Success;
     }
 }

@@ -162,5 +162,6 @@ public sealed class CompareAndEstimatesTests : IDisposable
         var result = _cli.RunRaw(["--version"]);
         Assert.Equal(ExitCodes.Success, result.Exit);
         Assert.StartsWith("0.1.0", result.Out.Trim());
+        Assert.EndsWith($"(ledger schema {Accountant.Ledger.SqliteLedgerStore.SchemaVersion})", result.Out.Trim());
     }
 }
