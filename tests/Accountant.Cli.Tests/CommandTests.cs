@@ -283,7 +283,7 @@ public sealed class CommandTests : IDisposable
         Assert.Equal(ExitCodes.Success, intro.Exit);
         Assert.Contains("accountant demo", intro.Out);
         Assert.Contains("accountant statement", intro.Out);
-        foreach (var verb in new[] { "init", "record", "import", "statement", "budget", "plan", "void", "verify", "search", "unseal", "plot", "simulate", "demo" })
+        foreach (var verb in new[] { "init", "record", "import", "statement", "budget", "plan", "void", "verify", "search", "unseal", "plot", "report", "compare", "simulate", "demo" })
         {
             Assert.Contains("Example: accountant " + verb, _cli.RunRaw([verb, "--help"]).Out);
         }
