@@ -4,7 +4,7 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 export DOTNET_CLI_TELEMETRY_OPTOUT=1 DOTNET_NOLOGO=1
-WORK="${BENCH_WORK:-$(mktemp -d /tmp/accountant-bench.XXXXXX)}"
+WORK="${BENCH_WORK:-$(mktemp -d -t accountant-bench.XXXXXX)}"
 mkdir -p "$WORK"
 
 # NumPy as a practitioner has it on Debian, with OpenBLAS (without it NumPy falls back to the reference BLAS).

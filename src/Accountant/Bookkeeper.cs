@@ -306,7 +306,7 @@ public sealed class Bookkeeper : IDisposable
         return look with { Release = new Released(key, release.Value, release.HoldoutAnswered, trainScore) };
     }
 
-    /// <summary>The values a released score on this holdout can take, for counting transcripts.</summary>
+    /// <summary>The values a released score on this holdout can take, for counting release sequences.</summary>
     public ValueSpace Space(Holdout holdout)
     {
         IReadOnlyList<HoldoutExample>? examples = null;

@@ -122,7 +122,7 @@ public sealed class RefineStrategyTests : IDisposable
     }
 
     [Fact]
-    public void Refine_records_its_later_looks_as_adaptive_and_the_statement_counts_the_guards_transcripts()
+    public void Refine_records_its_later_looks_as_adaptive_and_the_statement_counts_the_guards_release_sequences()
     {
         using var book = Bookkeeper.Create(Path.Combine(_folder, "refine.db"));
         var options = new DemoOptions { Looks = 8, TrainingRows = 300, ValidationRows = 300, FreshRows = 2000, Strategy = "refine", Guard = Guards.GuardSpec.Ladder(0.02) };

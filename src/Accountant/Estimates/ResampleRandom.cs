@@ -1,5 +1,3 @@
-using System.Numerics;
-
 namespace Accountant.Estimates;
 
 /// <summary>
@@ -9,32 +7,17 @@ namespace Accountant.Estimates;
 /// </summary>
 public struct ResampleRandom
 {
-    private ulong _s0, _s1, _s2, _s3;
+    private Randomness.Xoshiro256 _core;
     private uint _half;
     private bool _hasHalf;
 
     public ResampleRandom(ulong seed, long resample)
     {
-        var x = SplitMix(seed) ^ SplitMix(0xD1B54A32D192ED03UL + (ulong)resample);
-        _s0 = Next(ref x);
-        _s1 = Next(ref x);
-        _s2 = Next(ref x);
-        _s3 = Next(ref x);
+        _core = new Randomness.Xoshiro256(Randomness.Xoshiro256.Mix(seed) ^ Randomness.Xoshiro256.Mix(0xD1B54A32D192ED03UL + (ulong)resample));
     }
 
     /// <summary>The next 64 random bits.</summary>
-    public ulong NextUInt64()
-    {
-        var result = BitOperations.RotateLeft(_s1 * 5, 7) * 9;
-        var t = _s1 << 17;
-        _s2 ^= _s0;
-        _s3 ^= _s1;
-        _s1 ^= _s2;
-        _s0 ^= _s3;
-        _s2 ^= t;
-        _s3 = BitOperations.RotateLeft(_s3, 45);
-        return result;
-    }
+    public ulong NextUInt64() => _core.NextUInt64();
 
     /// <summary>
     /// A uniform integer in [0, bound), without bias: Lemire's multiply-and-reject on 32 random bits (Lemire 2019,
@@ -69,18 +52,5 @@ public struct ResampleRandom
         _half = (uint)(bits >> 32);
         _hasHalf = true;
         return (uint)bits;
-    }
-
-    private static ulong SplitMix(ulong z)
-    {
-        z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9UL;
-        z = (z ^ (z >> 27)) * 0x94D049BB133111EBUL;
-        return z ^ (z >> 31);
-    }
-
-    private static ulong Next(ref ulong x)
-    {
-        x += 0x9E3779B97F4A7C15UL;
-        return SplitMix(x);
     }
 }

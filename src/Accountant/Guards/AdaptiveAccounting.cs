@@ -11,7 +11,7 @@ public readonly record struct AccountedLook(bool Adaptive, GuardSpec Guard);
 /// one for each sequence of values the guards could have released before it, N_{&lt;t} = Π over guard streams of that
 /// stream's count (<see cref="Guard.LogCount"/>); looks recorded without a guard were shown exactly. A union bound over
 /// every candidate that could have been scored, M_eff = (non-adaptive looks) + Σ_{adaptive t} N_{&lt;t}, then covers the
-/// looks actually scored, whichever transcript occurred (Dwork et al. 2015, arXiv 1506.02629, Thm 9, with the prefix-sum
+/// looks actually scored, whichever release sequence occurred (Dwork et al. 2015, arXiv 1506.02629, Thm 9, with the prefix-sum
 /// refinement noted in DESIGN.md). It never exceeds M·Π V_t, the cruder ln M + Σ ln V_t, and with no adaptive look it is M.
 /// </para>
 /// </summary>

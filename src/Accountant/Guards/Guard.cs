@@ -15,9 +15,9 @@ public sealed record Release(double? Value, bool HoldoutAnswered)
 }
 
 /// <summary>
-/// The guards' release rules and their transcript counts. A search that peeks sees only released values; the
+/// The guards' release rules and their release-sequence counts. A search that peeks sees only released values; the
 /// accountant counts every sequence of values a guard could have released (not just the one it did), which is
-/// what makes the union over transcripts valid (Dwork et al. 2015, arXiv 1506.02629, Thm 9).
+/// what makes the union over release sequences valid (Dwork et al. 2015, arXiv 1506.02629, Thm 9).
 /// </summary>
 public static class Guard
 {
@@ -134,7 +134,7 @@ public static class Guard
 
     /// <summary>
     /// The Ladder's count as its paper states it (Blum &amp; Hardt 2015, arXiv 1502.04585, Claim 3.2, as quoted in DESIGN.md):
-    /// a depth-k transcript compresses into (1/η + 2)·ln(4k/η) nats.
+    /// a depth-k release sequence compresses into (1/η + 2)·ln(4k/η) nats.
     /// </summary>
     public static double LadderPaperLogCount(double step, int k) => (1.0 / step + 2.0) * Math.Log(4.0 * k / step);
 

@@ -1,7 +1,7 @@
 namespace Accountant.Guards;
 
 /// <summary>
-/// What a single released score can be, for counting transcripts: the metric's range, whether it is a mean of 0/1
+/// What a single released score can be, for counting release sequences: the metric's range, whether it is a mean of 0/1
 /// losses on n examples (n + 1 possible values), an AUC on m positives and n negatives (2mn + 1 values, ties
 /// counting one half), or a mean of bounded float losses (counted as 2^64 values, every double).
 /// </summary>

@@ -216,16 +216,16 @@ public static class SearchSimulator
     private readonly record struct Shared(int Mistakes, double Rho, double Floor);
 
     private static Shared DrawShared(SimulationOptions o, FastRandom random) =>
-        new(o.Correlation > 0 ? BinomialSampler.Sample(random, o.HoldoutSize, o.TrueErrorLow) : 0, o.Correlation, o.TrueErrorLow);
+        new(o.Correlation > 0 ? BinomialDraw.Sample(random, o.HoldoutSize, o.TrueErrorLow) : 0, o.Correlation, o.TrueErrorLow);
 
     /// <summary>Draws one configuration's error count with true error <paramref name="p"/>; returns the count.</summary>
     private static int Count(int n, double p, Shared shared, FastRandom random)
     {
-        if (shared.Rho <= 0) return BinomialSampler.Sample(random, n, p);
+        if (shared.Rho <= 0) return BinomialDraw.Sample(random, n, p);
         var q = (p - shared.Rho * shared.Floor) / (1 - shared.Rho);
-        var copiedMistakes = BinomialSampler.Sample(random, shared.Mistakes, shared.Rho);
-        var copiedRest = BinomialSampler.Sample(random, n - shared.Mistakes, shared.Rho);
-        return copiedMistakes + BinomialSampler.Sample(random, n - copiedMistakes - copiedRest, q);
+        var copiedMistakes = BinomialDraw.Sample(random, shared.Mistakes, shared.Rho);
+        var copiedRest = BinomialDraw.Sample(random, n - shared.Mistakes, shared.Rho);
+        return copiedMistakes + BinomialDraw.Sample(random, n - copiedMistakes - copiedRest, q);
     }
 
     private static (int Count, double Truth) Fixed(SimulationOptions o, FastRandom random, ValueSpace space)
@@ -288,7 +288,7 @@ public static class SearchSimulator
 
             var p = TrueError(x);
             var count = Count(n, p, shared, random);
-            var released = guard.Release(count / (double)n, BinomialSampler.Sample(random, n, p) / (double)n);
+            var released = guard.Release(count / (double)n, BinomialDraw.Sample(random, n, p) / (double)n);
             // The analyst moves toward the best value it was told; ties go to the latest.
             if (released is { } value && value <= bestReleased)
             {
@@ -328,7 +328,7 @@ public static class SearchSimulator
             }
 
             best = Math.Min(best, count);
-            var released = guard.Release(count / (double)n, BinomialSampler.Sample(random, n, 0.5) / (double)n);
+            var released = guard.Release(count / (double)n, BinomialDraw.Sample(random, n, 0.5) / (double)n);
             // "Looked good": told a value better than chance; the Ladder repeats its last value, so there only a new best counts.
             var good = released is { } value && value < 0.5 && (o.Guard.Kind != GuardKind.Ladder || value < lastTold);
             if (released is { } told) lastTold = told;

@@ -18,7 +18,7 @@ public static class StatementBuilder
     public const string KlReference = "Chernoff bound in relative-entropy form, Langford 2005, JMLR 6:273, with a union bound over the looks";
     public const string BernsteinReference = "Maurer & Pontil 2009, arXiv 0907.3740, Thm 4, with a union bound over the looks";
     public const string AucReference = "Agarwal et al. 2005, JMLR 6:393, with a union bound over the looks";
-    public const string TranscriptReference = "union over every look the guards' possible releases could have led to: Dwork et al. 2015, arXiv 1506.02629, Thm 9";
+    public const string ReleaseSequenceReference = "union over every look the guards' possible releases could have led to: Dwork et al. 2015, arXiv 1506.02629, Thm 9";
     public const string AdaptiveMethod = "adaptive-transcript";
 
     public static Statement Build(Holdout holdout, IReadOnlyList<Look> looks, IReadOnlyList<LookVoid> voids, string? chainHead,
@@ -138,7 +138,7 @@ public static class StatementBuilder
                     BinomialUnion.BoundLog(kUp, n, logLooks, delta, sided).Upper);
                 if (adaptive)
                 {
-                    lines.Add(Line(AdaptiveMethod, accuracy, observed, Binomial(), TranscriptReference));
+                    lines.Add(Line(AdaptiveMethod, accuracy, observed, Binomial(), ReleaseSequenceReference));
                     break;
                 }
 
@@ -155,7 +155,7 @@ public static class StatementBuilder
                 var positives = inputs.Positives ?? throw new InvalidOperationException("AUC statements need the number of positives.");
                 var margin = AucUnion.Margin(positives, n - positives, logLooks, delta, sided);
                 var interval = new Interval(Math.Max(0, observed - margin), sided == Sidedness.TwoSided ? Math.Min(1, observed + margin) : 1.0);
-                lines.Add(HigherLine(adaptive ? AdaptiveMethod : AucUnion.Name, observed, interval, adaptive ? TranscriptReference : AucReference));
+                lines.Add(HigherLine(adaptive ? AdaptiveMethod : AucUnion.Name, observed, interval, adaptive ? ReleaseSequenceReference : AucReference));
                 break;
             }
 
@@ -165,7 +165,7 @@ public static class StatementBuilder
                 var hoeffding = HoeffdingUnion.BoundLog(observed, n, logLooks, delta, range, sided);
                 if (adaptive)
                 {
-                    lines.Add(Line(AdaptiveMethod, false, observed, hoeffding, TranscriptReference));
+                    lines.Add(Line(AdaptiveMethod, false, observed, hoeffding, ReleaseSequenceReference));
                     break;
                 }
 

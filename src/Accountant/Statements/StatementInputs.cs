@@ -4,7 +4,7 @@ using Accountant.Ledger;
 namespace Accountant.Statements;
 
 /// <summary>What a statement needs beyond the looks: the values a release can take, the AUC's class counts, per-example losses.</summary>
-/// <param name="Space">The value space of a released score (for transcript counting); defaults from the metric when null.</param>
+/// <param name="Space">The value space of a released score (for release-sequence counting); defaults from the metric when null.</param>
 /// <param name="Positives">For AUC holdouts: the number of positive examples.</param>
 /// <param name="LossesOf">Reads one look's per-example losses, for methods that need them (empirical Bernstein).</param>
 /// <param name="Openings">The openings of the holdout's sealed test set, oldest first.</param>

@@ -69,7 +69,7 @@ public class TighterBoundTests
         Assert.Equal(HoeffdingUnion.Margin(1000, 250, 0.05), HoeffdingUnion.MarginLog(1000, Math.Log(250), 0.05), 12);
         Assert.Equal(BinomialUnion.Bound(80, 1000, 250, 0.05).Upper, BinomialUnion.BoundLog(80, 1000, Math.Log(250), 0.05).Upper, 12);
         Assert.Equal(1.0, BinomialUnion.BoundLog(80, 1000, 5000, 0.05).Upper);
-        // DESIGN.md check value for transcript counting: n = 10,000, k = 1000 looks, N = 2^20 transcripts, δ = 0.05,
+        // DESIGN.md check value for release-sequence counting: n = 10,000, k = 1000 looks, N = 2^20 release sequences, δ = 0.05,
         // two-sided → ε = sqrt((ln(N·k) + ln(2/δ))/(2n)) = 0.03497 (Dwork et al. 2015, Thm 9; arithmetic).
         Assert.Equal(0.03497, HoeffdingUnion.MarginLog(10_000, Math.Log(Math.Pow(2, 20) * 1000), 0.05, 1.0, Sidedness.TwoSided), 5);
     }

@@ -30,7 +30,7 @@ public sealed class AdaptiveLedgerTests : IDisposable
     }
 
     [Fact]
-    public void Adaptive_looks_switch_the_statement_to_transcript_accounting()
+    public void Adaptive_looks_switch_the_statement_to_release_sequence_accounting()
     {
         using var book = _temp.Create();
         book.RegisterHoldout("validation", TempLedger.Examples(2000));

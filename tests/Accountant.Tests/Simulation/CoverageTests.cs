@@ -62,7 +62,7 @@ public class CoverageTests
     }
 
     [Fact]
-    public void The_attack_with_exact_release_beats_the_union_bound_but_not_the_transcript_accounting()
+    public void The_attack_with_exact_release_beats_the_union_bound_but_not_the_release_sequence_accounting()
     {
         // Dwork et al. 2015 (Science 349:636) and Blum & Hardt 2015: combining the random classifiers that looked good
         // drives the validation error far below the true 0.5.
@@ -79,7 +79,7 @@ public class CoverageTests
     [Theory]
     [InlineData("ladder:0.01")]
     [InlineData("thresholdout:0.02,0.005,20")]
-    public void A_guard_blunts_the_attack_and_the_transcript_accounting_covers(string guard)
+    public void A_guard_blunts_the_attack_and_the_release_sequence_accounting_covers(string guard)
     {
         var exact = Run(new SimulationOptions { HoldoutSize = 2000, Looks = 200, TrueErrorLow = 0.5, TrueErrorHigh = 0.5, Strategy = AnalystStrategy.Attack, Seed = 7 });
         var guarded = Run(new SimulationOptions
@@ -131,7 +131,7 @@ internal static class SearchSimulatorProbe
         {
             var random = FastRandom.For(seed, r);
             var best = int.MaxValue;
-            for (var j = 0; j < looks; j++) best = Math.Min(best, BinomialSampler.Sample(random, n, 0.5));
+            for (var j = 0; j < looks; j++) best = Math.Min(best, BinomialDraw.Sample(random, n, 0.5));
             if (best / (double)n < level) below++;
         }
 

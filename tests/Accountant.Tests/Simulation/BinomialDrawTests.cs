@@ -3,7 +3,7 @@ using MathNet.Numerics.Distributions;
 
 namespace Accountant.Tests.Simulation;
 
-public class BinomialSamplerTests
+public class BinomialDrawTests
 {
     [Theory]
     [InlineData(10_000, 0.2)]
@@ -17,7 +17,7 @@ public class BinomialSamplerTests
         const int draws = 200_000;
         var random = new FastRandom(42);
         var counts = new int[n + 1];
-        for (var i = 0; i < draws; i++) counts[BinomialSampler.Sample(random, n, p)]++;
+        for (var i = 0; i < draws; i++) counts[BinomialDraw.Sample(random, n, p)]++;
         double chi = 0;
         var cells = 0;
         double pendingExpected = 0, pendingObserved = 0;

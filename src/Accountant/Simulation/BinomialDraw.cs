@@ -7,7 +7,7 @@ namespace Accountant.Simulation;
 /// (Hörmann 1993, J. Stat. Comput. Simul. 46:101), for n·min(p, 1 − p) ≥ 10, and inversion by the
 /// pmf recurrence below that. Checked against MathNet's binomial pmf in the tests.
 /// </summary>
-public static class BinomialSampler
+public static class BinomialDraw
 {
     public static int Sample(FastRandom random, int n, double p)
     {
