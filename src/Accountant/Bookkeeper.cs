@@ -225,7 +225,8 @@ public sealed class Bookkeeper : IDisposable
 
         // Guards keep state from one release to the next, so they are applied in order, after every input was checked.
         Dictionary<string, GuardState>? streams = null;
-        for (var i = 0; i < inputs.Count && Array.TrueForAll(failures, f => f is null); i++)
+        var checkedClean = Array.TrueForAll(failures, f => f is null);
+        for (var i = 0; checkedClean && i < inputs.Count; i++)
         {
             if (inputs[i].Guard is not { } guard) continue;
             try
@@ -235,6 +236,7 @@ public sealed class Bookkeeper : IDisposable
             catch (AccountantException e)
             {
                 failures[i] = e;
+                break;
             }
         }
 
