@@ -152,13 +152,17 @@ public sealed class SqliteLedgerStore : ILedgerStore
             Upgrade(version);
         }
 
-        try
+        // Only a ledger made before the index existed needs it built; asking first keeps every other open read-only.
+        if (Convert.ToInt64(Scalar("SELECT count(*) FROM sqlite_master WHERE type = 'index' AND name = 'looks_by_score';"), CultureInfo.InvariantCulture) == 0)
         {
-            Execute(_connection, TallyIndex);
-        }
-        catch (SqliteException e) when (e.SqliteErrorCode is 8 /* READONLY */ or 5 or 6 /* BUSY, LOCKED */)
-        {
-            // A read-only or busy ledger is still read correctly without the index, only more slowly.
+            try
+            {
+                Execute(_connection, TallyIndex);
+            }
+            catch (SqliteException e) when (e.SqliteErrorCode is 8 /* READONLY */ or 5 or 6 /* BUSY, LOCKED */)
+            {
+                // A read-only or busy ledger is still read correctly without the index, only more slowly.
+            }
         }
     }
 
