@@ -46,29 +46,8 @@ internal sealed class UnsealCommand : Command
                     w.WriteString("fingerprint", fingerprint);
                     w.WriteEndObject();
                     w.WriteNumber("testOpenings", statement.TestOpenings);
-                    w.WritePropertyName("bounds");
-                    w.WriteStartArray();
-                    foreach (var line in statement.Bounds)
-                    {
-                        w.WriteStartObject();
-                        w.WriteString("method", line.Method);
-                        w.WriteNumber("bound", line.Bound);
-                        w.WriteNumber("margin", line.Margin);
-                        w.WriteBoolean("guarantee", line.Guarantee);
-                        w.WriteEndObject();
-                    }
-
-                    w.WriteEndArray();
-                    w.WriteStartArray("warnings");
-                    foreach (var warning in statement.Warnings)
-                    {
-                        w.WriteStartObject();
-                        w.WriteString("code", warning.Code);
-                        w.WriteString("message", warning.Message);
-                        w.WriteEndObject();
-                    }
-
-                    w.WriteEndArray();
+                    StatementWriter.WriteBounds(w, statement);
+                    StatementWriter.WriteWarnings(w, statement);
                     w.WriteString("chainHead", statement.ChainHead);
                 }));
             }

@@ -231,6 +231,42 @@ public static class StatementWriter
         return Encoding.UTF8.GetString(stream.ToArray()) + Environment.NewLine;
     }
 
+    /// <summary>The statement's <c>bounds</c> array, as every JSON output that carries bounds writes it.</summary>
+    public static void WriteBounds(Utf8JsonWriter w, Statement s)
+    {
+        w.WriteStartArray("bounds");
+        foreach (var line in s.Bounds)
+        {
+            w.WriteStartObject();
+            w.WriteString("method", line.Method);
+            w.WriteNumber("bound", line.Bound);
+            w.WriteNumber("margin", line.Margin);
+            w.WriteBoolean("guarantee", line.Guarantee);
+            w.WriteBoolean("tightest", line.Tightest);
+            w.WriteNumber("lower", line.Lower);
+            w.WriteNumber("upper", line.Upper);
+            w.WriteString("reference", line.Reference);
+            w.WriteEndObject();
+        }
+
+        w.WriteEndArray();
+    }
+
+    /// <summary>The statement's <c>warnings</c> array.</summary>
+    public static void WriteWarnings(Utf8JsonWriter w, Statement s)
+    {
+        w.WriteStartArray("warnings");
+        foreach (var warning in s.Warnings)
+        {
+            w.WriteStartObject();
+            w.WriteString("code", warning.Code);
+            w.WriteString("message", warning.Message);
+            w.WriteEndObject();
+        }
+
+        w.WriteEndArray();
+    }
+
     /// <summary>A JSON object that starts with <c>schemaVersion</c>, as every JSON output of the tool does.</summary>
     public static string JsonObject(Action<Utf8JsonWriter> fields) => JsonText(w =>
     {
@@ -280,22 +316,7 @@ public static class StatementWriter
             w.WriteNull("best");
         }
 
-        w.WriteStartArray("bounds");
-        foreach (var line in s.Bounds)
-        {
-            w.WriteStartObject();
-            w.WriteString("method", line.Method);
-            w.WriteNumber("bound", line.Bound);
-            w.WriteNumber("margin", line.Margin);
-            w.WriteBoolean("guarantee", line.Guarantee);
-            w.WriteBoolean("tightest", line.Tightest);
-            w.WriteNumber("lower", line.Lower);
-            w.WriteNumber("upper", line.Upper);
-            w.WriteString("reference", line.Reference);
-            w.WriteEndObject();
-        }
-
-        w.WriteEndArray();
+        WriteBounds(w, s);
         WriteEstimates(w, s);
         WriteWinner(w, s);
         w.WriteStartObject("budget");
@@ -306,16 +327,7 @@ public static class StatementWriter
         w.WriteNumber("looksLeft", s.Budget.LooksLeft);
         w.WriteEndObject();
         w.WriteString("chainHead", s.ChainHead);
-        w.WriteStartArray("warnings");
-        foreach (var warning in s.Warnings)
-        {
-            w.WriteStartObject();
-            w.WriteString("code", warning.Code);
-            w.WriteString("message", warning.Message);
-            w.WriteEndObject();
-        }
-
-        w.WriteEndArray();
+        WriteWarnings(w, s);
         w.WriteStartArray("cautions");
         foreach (var caution in s.Cautions) w.WriteStringValue(caution);
         w.WriteEndArray();
