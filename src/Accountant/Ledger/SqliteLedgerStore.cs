@@ -720,12 +720,29 @@ public sealed class SqliteLedgerStore : ILedgerStore
         5 or 6 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' stayed locked by another writer for more than {BusyTimeout.TotalSeconds:0} s; retry when the other process has finished (nothing was written).", e),
         8 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' is read-only; make the file and its folder writable, or point --ledger at a writable copy (nothing was written).", e),
         13 => new AccountantException(ErrorKind.LedgerUnusable, $"the disk holding the ledger '{path}' is full; free space and retry (nothing was written).", e),
+        // A full disk can also surface as an I/O error (growing the WAL index or the journal); say which when the disk is full.
+        10 when DiskFull(path) => new AccountantException(ErrorKind.LedgerUnusable, $"the disk holding the ledger '{path}' is full; free space and retry (nothing was written).", e),
+        10 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' could not be read or written (a disk I/O error, SQLite code {e.SqliteExtendedErrorCode}); check the disk and retry (nothing was written).", e),
         11 => new AccountantException(ErrorKind.Integrity, $"the ledger '{path}' is damaged at the SQLite level ({e.Message}); restore it from a copy and run 'accountant verify'.", e),
         26 => new AccountantException(ErrorKind.LedgerUnusable, $"'{path}' is not an Accountant ledger (not a SQLite database); point --ledger at a ledger made by 'accountant init'.", e),
         14 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' cannot be opened ({e.Message}); check that the path and its folder exist and are accessible.", e),
         19 when e.Message.Contains("append-only", StringComparison.Ordinal) => new AccountantException(ErrorKind.Integrity, "the ledger is append-only: entries cannot be changed or removed (void a look instead).", e),
         _ => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' could not be used: {e.Message.TrimEnd('.')} (SQLite code {e.SqliteErrorCode}); nothing was written.", e),
     };
+
+    /// <summary>Whether the file system holding <paramref name="path"/> has (almost) no space left.</summary>
+    private static bool DiskFull(string path)
+    {
+        try
+        {
+            var folder = Path.GetDirectoryName(Path.GetFullPath(path)) ?? ".";
+            return new DriveInfo(folder).AvailableFreeSpace < 64 * 1024;
+        }
+        catch (Exception e) when (e is IOException or UnauthorizedAccessException or ArgumentException)
+        {
+            return false;
+        }
+    }
 
     public void Dispose() => _connection.Dispose();
 }
