@@ -12,7 +12,7 @@ namespace Accountant.Cli.Tests.Reliability;
 public sealed class CrashTests(ITestOutputHelper output)
 {
     private const int ImportKills = 100, ImportSize = 400;
-    private const int SearchKills = 6;
+    private const int SearchKills = 8;
 
     [Fact]
     public void An_import_killed_at_random_moments_is_all_or_nothing_and_the_ledger_always_verifies()
@@ -82,7 +82,7 @@ public sealed class CrashTests(ITestOutputHelper output)
         for (var kill = 0; kill < SearchKills; kill++)
         {
             var ledger = Path.Combine(cli.Folder, $"search-{kill}.db");
-            var delay = (0.15 + (kill + random.NextDouble()) / SearchKills * 0.85) * duration;
+            var delay = (kill + random.NextDouble()) / SearchKills * duration;
             using (var running = new Processes.Running(Processes.Cli, Search(ledger)))
             {
                 Thread.Sleep(TimeSpan.FromMilliseconds(delay));
