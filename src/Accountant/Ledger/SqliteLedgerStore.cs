@@ -730,7 +730,7 @@ public sealed class SqliteLedgerStore : ILedgerStore
         10 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' could not be read or written (a disk I/O error, SQLite code {e.SqliteExtendedErrorCode}); check the disk and retry (nothing was written).", e),
         11 => new AccountantException(ErrorKind.Integrity, $"the ledger '{path}' is damaged at the SQLite level ({e.Message}); restore it from a copy and run 'accountant verify'.", e),
         26 => new AccountantException(ErrorKind.LedgerUnusable, $"'{path}' is not an Accountant ledger (not a SQLite database); point --ledger at a ledger made by 'accountant init'.", e),
-        14 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' cannot be opened ({e.Message}); check that the path and its folder exist and are accessible.", e),
+        14 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' cannot be opened ({e.Message.TrimEnd('.')}); check that the path and its folder exist and are accessible.", e),
         19 when e.Message.Contains("append-only", StringComparison.Ordinal) => new AccountantException(ErrorKind.Integrity, "the ledger is append-only: entries cannot be changed or removed (void a look instead).", e),
         _ => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' could not be used: {e.Message.TrimEnd('.')} (SQLite code {e.SqliteErrorCode}); nothing was written.", e),
     };

@@ -133,19 +133,7 @@ public sealed class EnvironmentFaultTests(ITestOutputHelper output) : IDisposabl
 
             // Fill the disk to the last byte.
             var filler = Path.Combine(mount, "filler");
-            using (var stream = new FileStream(filler, FileMode.Create))
-            {
-                var block = new byte[4096];
-                try
-                {
-                    while (true) stream.Write(block);
-                }
-                catch (IOException)
-                {
-                }
-
-                try { stream.Dispose(); } catch (IOException) { }
-            }
+            Fill(filler, FileMode.Create);
 
             // Leave 256 KB free: the import starts writing and runs out part-way through its transaction.
             using (var stream = new FileStream(filler, FileMode.Open)) stream.SetLength(stream.Length - 256 * 1024);
@@ -154,18 +142,7 @@ public sealed class EnvironmentFaultTests(ITestOutputHelper output) : IDisposabl
             var import = _cli.Run("import", "validation", _cli.Write("looks.jsonl", lines.ToString()), "--ledger", ledger);
             output.WriteLine($"import of 5000 looks with 256 KB left on a 2 MB tmpfs: exit {import.Exit}: {import.Err.Trim()}");
             using (var book = Bookkeeper.Open(ledger)) Assert.Equal(head, book.Store.ChainHead()); // not a part of the import
-            using (var stream = new FileStream(filler, FileMode.Append))
-            {
-                try
-                {
-                    while (true) stream.Write(new byte[4096]);
-                }
-                catch (IOException)
-                {
-                }
-
-                try { stream.Dispose(); } catch (IOException) { }
-            }
+            Fill(filler, FileMode.Append); // and now to the last byte
 
             AssertOneLine(import, ExitCodes.LedgerUnusable, "full");
             var record = _cli.Run("record", "validation", "--configuration", "{\"k\":1}", "--score", "0.3", "--ledger", ledger);
@@ -188,6 +165,22 @@ public sealed class EnvironmentFaultTests(ITestOutputHelper output) : IDisposabl
             var unmounted = Run("umount", mount);
             if (unmounted.Exit != 0) Run("umount", "-l", mount);
         }
+    }
+
+    /// <summary>Writes zeros to <paramref name="path"/> until the disk is full.</summary>
+    private static void Fill(string path, FileMode mode)
+    {
+        var stream = new FileStream(path, mode);
+        var block = new byte[4096];
+        try
+        {
+            while (true) stream.Write(block);
+        }
+        catch (IOException)
+        {
+        }
+
+        try { stream.Dispose(); } catch (IOException) { }
     }
 
     [Fact]
