@@ -129,7 +129,7 @@ public sealed class Bookkeeper : IDisposable
                 throw AccountantException.BadInput($"example '{Losses.Shorten(id)}' has the label '{Losses.Shorten(label)}'; auc needs binary labels written 1 (positive) or 0 (negative).");
             }
 
-            if (metric is Metric.AbsoluteError or Metric.SquaredError && !double.TryParse(label, System.Globalization.NumberStyles.Float, System.Globalization.CultureInfo.InvariantCulture, out _))
+            if (metric is Metric.AbsoluteError or Metric.SquaredError && !(double.TryParse(label, System.Globalization.NumberStyles.Float, System.Globalization.CultureInfo.InvariantCulture, out var numeric) && double.IsFinite(numeric)))
             {
                 throw AccountantException.BadInput($"example '{Losses.Shorten(id)}' has the label '{Losses.Shorten(label)}', which is not a finite number; {metric.Name()} needs numeric labels written with a '.' decimal point.");
             }

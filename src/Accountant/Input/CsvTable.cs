@@ -246,5 +246,5 @@ public sealed class CsvTable
         return new CsvTable(source, header, rows, lines);
     }
 
-    private static string Shorten(string text) => text.Length <= 40 ? text : text[..37] + "...";
+    private static string Shorten(string text) => Ledger.Losses.Printable(text.Length <= 40 ? text : text[..37] + "...");
 }

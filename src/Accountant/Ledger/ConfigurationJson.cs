@@ -69,7 +69,7 @@ public static class ConfigurationJson
                 {
                     if (string.Equals(names[i - 1], names[i], StringComparison.Ordinal))
                     {
-                        throw AccountantException.BadInput($"the configuration names the key '{names[i]}' twice; give each hyperparameter once.");
+                        throw AccountantException.BadInput($"the configuration names the key '{Losses.Shorten(names[i])}' twice; give each hyperparameter once.");
                     }
                 }
 

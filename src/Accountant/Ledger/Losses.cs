@@ -164,5 +164,25 @@ public static class Losses
         }
     }
 
-    internal static string Shorten(string text) => text.Length <= 60 ? text : text[..57] + "...";
+    internal static string Shorten(string text) => Printable(text.Length <= 60 ? text : text[..57] + "...");
+
+    /// <summary>Shows control characters as escapes (\n, \r, \t, \u0000), so an error quoting input stays on one line.</summary>
+    internal static string Printable(string text)
+    {
+        if (!text.Any(char.IsControl)) return text;
+        var b = new System.Text.StringBuilder(text.Length + 8);
+        foreach (var c in text)
+        {
+            b.Append(c switch
+            {
+                '\n' => "\\n",
+                '\r' => "\\r",
+                '\t' => "\\t",
+                _ when char.IsControl(c) => $"\\u{(int)c:x4}",
+                _ => c.ToString(),
+            });
+        }
+
+        return b.ToString();
+    }
 }

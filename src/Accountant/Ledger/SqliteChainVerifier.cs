@@ -98,8 +98,9 @@ internal sealed class SqliteChainVerifier(SqliteConnection connection)
         var head = expected > 1 ? Chain.Hex(previous) : null;
         if (!sawExpectedHead)
         {
-            return new ChainReport(false, expected - 1, head, null,
-                $"the chain does not contain the head {expectedHead}: the ledger was truncated, rolled back to an older copy, or rewritten since that head was printed");
+            // The chain as stored is consistent but lacks the printed head: name the first entry past its end, the first one missing.
+            return new ChainReport(false, expected - 1, head, expected,
+                $"the chain does not contain the head {expectedHead}: it ends at entry {expected - 1}, so the ledger was truncated or rolled back to an older copy (entry {expected} onward is missing), or rewritten since that head was printed");
         }
 
         return new ChainReport(true, expected - 1, head, null, null);

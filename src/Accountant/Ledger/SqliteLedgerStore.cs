@@ -26,12 +26,14 @@ public sealed class SqliteLedgerStore : ILedgerStore
 
     private readonly SqliteConnection _connection;
     private readonly TimeProvider _clock;
+    private readonly TimeSpan _busyTimeout;
 
-    private SqliteLedgerStore(string path, SqliteConnection connection, TimeProvider clock)
+    private SqliteLedgerStore(string path, SqliteConnection connection, TimeProvider clock, TimeSpan busyTimeout)
     {
         Location = path;
         _connection = connection;
         _clock = clock;
+        _busyTimeout = busyTimeout;
     }
 
     public string Location { get; }
@@ -54,8 +56,11 @@ public sealed class SqliteLedgerStore : ILedgerStore
     }
 
     /// <summary>Opens an existing ledger, or creates it when <paramref name="create"/> is set and the file is missing.</summary>
-    public static SqliteLedgerStore Open(string path, TimeProvider? clock = null, bool create = false)
+    /// <param name="busyTimeout">How long a write waits for another writer's lock (SQLite retries with growing pauses
+    /// meanwhile) before it fails with a clear error; <see cref="BusyTimeout"/> unless given.</param>
+    public static SqliteLedgerStore Open(string path, TimeProvider? clock = null, bool create = false, TimeSpan? busyTimeout = null)
     {
+        var timeout = busyTimeout ?? BusyTimeout;
         var exists = File.Exists(path);
         if (!exists && !create)
         {
@@ -72,21 +77,21 @@ public sealed class SqliteLedgerStore : ILedgerStore
             DataSource = path,
             Mode = create ? SqliteOpenMode.ReadWriteCreate : SqliteOpenMode.ReadWrite,
             Pooling = false,
-            DefaultTimeout = (int)BusyTimeout.TotalSeconds,
+            DefaultTimeout = Math.Max(1, (int)Math.Ceiling(timeout.TotalSeconds)),
         };
         var connection = new SqliteConnection(builder.ConnectionString);
         try
         {
             connection.Open();
-            Execute(connection, $"PRAGMA busy_timeout = {(int)BusyTimeout.TotalMilliseconds};");
-            var store = new SqliteLedgerStore(path, connection, clock ?? TimeProvider.System);
+            Execute(connection, $"PRAGMA busy_timeout = {(int)timeout.TotalMilliseconds};");
+            var store = new SqliteLedgerStore(path, connection, clock ?? TimeProvider.System, timeout);
             store.Prepare(allowInitialize: create);
             return store;
         }
         catch (SqliteException e)
         {
             connection.Dispose();
-            throw Translate(e, path);
+            throw Translate(e, path, timeout);
         }
         catch
         {
@@ -710,7 +715,7 @@ public sealed class SqliteLedgerStore : ILedgerStore
         }
         catch (SqliteException e)
         {
-            throw Translate(e, Location);
+            throw Translate(e, Location, _busyTimeout);
         }
         catch (Exception e) when (e is InvalidCastException or FormatException or OverflowException)
         {
@@ -719,17 +724,34 @@ public sealed class SqliteLedgerStore : ILedgerStore
     }
 
     /// <summary>Turns SQLite's result codes into errors that say what to do.</summary>
-    internal static AccountantException Translate(SqliteException e, string path) => e.SqliteErrorCode switch
+    internal static AccountantException Translate(SqliteException e, string path, TimeSpan? busyTimeout = null) => e.SqliteErrorCode switch
     {
-        5 or 6 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' stayed locked by another writer for more than {BusyTimeout.TotalSeconds:0} s; retry when the other process has finished (nothing was written).", e),
+        5 or 6 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' stayed locked by another writer for more than {(busyTimeout ?? BusyTimeout).TotalSeconds:0.#} s; retry when the other process has finished (nothing was written).", e),
         8 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' is read-only; make the file and its folder writable, or point --ledger at a writable copy (nothing was written).", e),
         13 => new AccountantException(ErrorKind.LedgerUnusable, $"the disk holding the ledger '{path}' is full; free space and retry (nothing was written).", e),
+        // A full disk can also surface as an I/O error (growing the WAL index or the journal); say which when the disk is full.
+        10 when DiskFull(path) => new AccountantException(ErrorKind.LedgerUnusable, $"the disk holding the ledger '{path}' is full; free space and retry (nothing was written).", e),
+        10 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' could not be read or written (a disk I/O error, SQLite code {e.SqliteExtendedErrorCode}); check the disk and retry (nothing was written).", e),
         11 => new AccountantException(ErrorKind.Integrity, $"the ledger '{path}' is damaged at the SQLite level ({e.Message}); restore it from a copy and run 'accountant verify'.", e),
         26 => new AccountantException(ErrorKind.LedgerUnusable, $"'{path}' is not an Accountant ledger (not a SQLite database); point --ledger at a ledger made by 'accountant init'.", e),
-        14 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' cannot be opened ({e.Message}); check that the path and its folder exist and are accessible.", e),
+        14 => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' cannot be opened ({e.Message.TrimEnd('.')}); check that the path and its folder exist and are accessible.", e),
         19 when e.Message.Contains("append-only", StringComparison.Ordinal) => new AccountantException(ErrorKind.Integrity, "the ledger is append-only: entries cannot be changed or removed (void a look instead).", e),
         _ => new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' could not be used: {e.Message.TrimEnd('.')} (SQLite code {e.SqliteErrorCode}); nothing was written.", e),
     };
+
+    /// <summary>Whether the file system holding <paramref name="path"/> has (almost) no space left.</summary>
+    private static bool DiskFull(string path)
+    {
+        try
+        {
+            var folder = Path.GetDirectoryName(Path.GetFullPath(path)) ?? ".";
+            return new DriveInfo(folder).AvailableFreeSpace < 64 * 1024;
+        }
+        catch (Exception e) when (e is IOException or UnauthorizedAccessException or ArgumentException)
+        {
+            return false;
+        }
+    }
 
     public void Dispose() => _connection.Dispose();
 }
