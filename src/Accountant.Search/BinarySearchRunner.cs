@@ -114,16 +114,8 @@ public sealed class BinarySearchRunner(MLContext ml, IEstimator<ITransformer> fe
         return new SearchOutcome(scoredLooks, best, bestModel, Cancelled: false);
     }
 
-    private ITransformer Fit(TrainerConfiguration configuration, IDataView features)
-    {
-        IEstimator<ITransformer> trainer = BinaryTrainers.Build(ml, configuration);
-        if (BinaryTrainers.NeedsNormalization(configuration.Trainer))
-        {
-            trainer = ml.Transforms.NormalizeMinMax("Features").Append(trainer);
-        }
-
-        return trainer.Fit(features);
-    }
+    private ITransformer Fit(TrainerConfiguration configuration, IDataView features) =>
+        TrainerCatalog.Build(ml, Data.TaskKind.Binary, configuration).Fit(features);
 
     /// <summary>The 0/1 error of a model on a data view with a bool "Label" column.</summary>
     public double Error(ITransformer model, IDataView data, out long rows)

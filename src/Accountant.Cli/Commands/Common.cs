@@ -79,5 +79,4 @@ internal static class Common
         }
     }
 
-    public static string Invariant(FormattableString text) => text.ToString(CultureInfo.InvariantCulture);
 }

@@ -18,39 +18,14 @@ public static class BinaryTrainers
     public const string SdcaLogistic = "sdca-logistic";
     public const string LbfgsLogistic = "lbfgs-logistic";
 
+    /// <summary>The binary trainers with their ranges (shared with the other tasks' spaces in <see cref="TrainerCatalog"/>).</summary>
     public static IReadOnlyList<TrainerSpace> DefaultSpace { get; } =
     [
-        new(FastTree,
-        [
-            new("leaves", 2, 128, ParameterScale.LogInteger),
-            new("trees", 10, 300, ParameterScale.LogInteger),
-            new("learningRate", 0.01, 0.5, ParameterScale.LogUniform),
-            new("minLeaf", 1, 100, ParameterScale.LogInteger),
-        ]),
-        new(LightGbm,
-        [
-            new("leaves", 2, 128, ParameterScale.LogInteger),
-            new("iterations", 10, 300, ParameterScale.LogInteger),
-            new("learningRate", 0.01, 0.5, ParameterScale.LogUniform),
-            new("minLeaf", 1, 100, ParameterScale.LogInteger),
-        ]),
-        new(SdcaLogistic,
-        [
-            new("l2", 1e-6, 10, ParameterScale.LogUniform),
-            new("l1", 1e-6, 1, ParameterScale.LogUniform),
-        ]),
-        new(FastForest,
-        [
-            new("leaves", 2, 128, ParameterScale.LogInteger),
-            new("trees", 10, 200, ParameterScale.LogInteger),
-            new("minLeaf", 1, 100, ParameterScale.LogInteger),
-            new("featureFraction", 0.3, 1.0, ParameterScale.Uniform),
-        ]),
-        new(LbfgsLogistic,
-        [
-            new("l2", 1e-4, 10, ParameterScale.LogUniform),
-            new("l1", 1e-4, 10, ParameterScale.LogUniform),
-        ]),
+        new(FastTree, TrainerCatalog.Trees),
+        new(LightGbm, TrainerCatalog.Boosting),
+        new(SdcaLogistic, TrainerCatalog.Linear),
+        new(FastForest, TrainerCatalog.Forest),
+        new(LbfgsLogistic, TrainerCatalog.LbfgsLinear),
     ];
 
     /// <summary>
@@ -61,9 +36,6 @@ public static class BinaryTrainers
         var random = new Random(seed);
         return Enumerable.Range(0, count).Select(i => space[i % space.Count].Sample(random)).ToList();
     }
-
-    /// <summary>Whether the trainer needs normalized features (the linear models do; trees do not care).</summary>
-    public static bool NeedsNormalization(string trainer) => trainer is SdcaLogistic or LbfgsLogistic;
 
     /// <summary>The ML.NET estimator for a configuration, reading "Label" (bool) and "Features".</summary>
     public static IEstimator<ITransformer> Build(MLContext ml, TrainerConfiguration c, int threads = 1) => c.Trainer switch

@@ -17,7 +17,7 @@ public static class TrainerCatalog
     public const string FastTreeOva = "fasttree-ova";
     public const string Sdca = "sdca";
 
-    private static readonly ParameterRange[] Trees =
+    internal static readonly ParameterRange[] Trees =
     [
         new("leaves", 2, 128, ParameterScale.LogInteger),
         new("trees", 10, 300, ParameterScale.LogInteger),
@@ -25,7 +25,7 @@ public static class TrainerCatalog
         new("minLeaf", 1, 100, ParameterScale.LogInteger),
     ];
 
-    private static readonly ParameterRange[] Boosting =
+    internal static readonly ParameterRange[] Boosting =
     [
         new("leaves", 2, 128, ParameterScale.LogInteger),
         new("iterations", 10, 300, ParameterScale.LogInteger),
@@ -33,7 +33,7 @@ public static class TrainerCatalog
         new("minLeaf", 1, 100, ParameterScale.LogInteger),
     ];
 
-    private static readonly ParameterRange[] Forest =
+    internal static readonly ParameterRange[] Forest =
     [
         new("leaves", 2, 128, ParameterScale.LogInteger),
         new("trees", 10, 200, ParameterScale.LogInteger),
@@ -41,10 +41,16 @@ public static class TrainerCatalog
         new("featureFraction", 0.3, 1.0, ParameterScale.Uniform),
     ];
 
-    private static readonly ParameterRange[] Linear =
+    internal static readonly ParameterRange[] Linear =
     [
         new("l2", 1e-6, 10, ParameterScale.LogUniform),
         new("l1", 1e-6, 1, ParameterScale.LogUniform),
+    ];
+
+    internal static readonly ParameterRange[] LbfgsLinear =
+    [
+        new("l2", 1e-4, 10, ParameterScale.LogUniform),
+        new("l1", 1e-4, 10, ParameterScale.LogUniform),
     ];
 
     public static IReadOnlyList<TrainerSpace> DefaultSpace(TaskKind task) => task switch
@@ -54,7 +60,7 @@ public static class TrainerCatalog
         [
             new(BinaryTrainers.LightGbm, Boosting),
             new(SdcaMaxEnt, Linear),
-            new(LbfgsMaxEnt, [new("l2", 1e-4, 10, ParameterScale.LogUniform), new("l1", 1e-4, 10, ParameterScale.LogUniform)]),
+            new(LbfgsMaxEnt, LbfgsLinear),
             new(FastTreeOva, Trees),
         ],
         _ =>
