@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # A throwaway PostgreSQL cluster for the tests: `start DIR` initializes one under DIR (owned by the postgres user,
 # since PostgreSQL refuses to run as root), listening on 127.0.0.1 only with its socket in DIR, and prints a
-# connection string; `stop DIR` stops it. Nothing outside DIR is touched.
+# connection string; `stop DIR` stops it and removes DIR. Nothing outside DIR is touched.
 set -euo pipefail
 action=${1:?usage: postgres.sh start|stop DIR}
 dir=${2:?usage: postgres.sh start|stop DIR}
@@ -27,6 +27,7 @@ case "$action" in
     ;;
   stop)
     [ -d "$dir/data" ] && as_owner "$bin/pg_ctl" -D "$dir/data" -m fast -w stop >/dev/null || true
+    rm -rf "$dir"
     ;;
   *) echo "usage: postgres.sh start|stop DIR" >&2; exit 2 ;;
 esac

@@ -646,6 +646,19 @@ public sealed class SqliteLedgerStore : ILedgerStore
     /// <summary>The stored rows, read from one snapshot (a deferred transaction sees one state of the WAL).</summary>
     public ILedgerRows Rows() => new DbLedgerRows(_connection, () => _connection.BeginTransaction(deferred: true));
 
+    public ChainReport Import(ILedgerRows source, string? expectedHead) => Guarded(() =>
+    {
+        using var transaction = _connection.BeginTransaction(deferred: false);
+        if (Convert.ToInt64(Scalar("SELECT count(*) FROM entries;"), CultureInfo.InvariantCulture) != 0)
+        {
+            throw new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{Location}' is not empty; copy into a new ledger file.");
+        }
+
+        var report = LedgerCopy.Write(_connection, transaction, source, expectedHead);
+        transaction.Commit();
+        return report;
+    });
+
     private (long Sequence, byte[] Previous) Tail()
     {
         using var command = Command("SELECT seq, hash FROM entries ORDER BY seq DESC LIMIT 1;");
