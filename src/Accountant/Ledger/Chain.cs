@@ -17,8 +17,6 @@ public static class Chain
 
     public static byte[] Genesis { get; } = new byte[HashSize];
 
-    private static readonly JsonWriterOptions Options = new() { Encoder = JavaScriptEncoder.UnsafeRelaxedJsonEscaping };
-
     public static byte[] Link(byte[] previous, byte[] canonical)
     {
         var length = previous.Length + canonical.Length;
@@ -52,7 +50,14 @@ public static class Chain
     });
 
     public static byte[] LookEntry(long sequence, string holdoutFingerprint, int number, string configuration, string configurationDigest,
-        double score, bool adaptive, LossEncoding encoding, byte[]? losses, string? search, string? stage, double? seconds, string recordedAt, Released? release = null) => Write(w =>
+        double score, bool adaptive, LossEncoding encoding, byte[]? losses, string? search, string? stage, double? seconds, string recordedAt, Released? release = null) =>
+        LookEntryWriter.TryWrite(sequence, holdoutFingerprint, number, configuration, configurationDigest, score, adaptive, encoding, losses, search, stage, seconds, recordedAt, release)
+        ?? WriteLookEntry(sequence, holdoutFingerprint, number, configuration, configurationDigest, score, adaptive, encoding, losses, search, stage, seconds, recordedAt, release);
+
+    /// <summary>The look entry through <see cref="Utf8JsonWriter"/>: the definition of its bytes, and the path for text the
+    /// direct writer leaves to it.</summary>
+    internal static byte[] WriteLookEntry(long sequence, string holdoutFingerprint, int number, string configuration, string configurationDigest,
+        double score, bool adaptive, LossEncoding encoding, byte[]? losses, string? search, string? stage, double? seconds, string recordedAt, Released? release) => Write(w =>
     {
         w.WriteString("kind", "look");
         w.WriteNumber("seq", sequence);
@@ -111,12 +116,19 @@ public static class Chain
     [ThreadStatic] private static ArrayBufferWriter<byte>? t_buffer;
     [ThreadStatic] private static Utf8JsonWriter? t_writer;
 
+    /// <summary>Relaxed escaping: non-ASCII text is written as it is, not as \u escapes. Apart, so that a look entry
+    /// written directly does not load the encoder.</summary>
+    private static class Json
+    {
+        public static readonly JsonWriterOptions Options = new() { Encoder = JavaScriptEncoder.UnsafeRelaxedJsonEscaping };
+    }
+
     private static byte[] Write(Action<Utf8JsonWriter> body)
     {
-        // One buffer and writer per thread, reused: an ingest writes one entry per look.
+        // One buffer and writer per thread, reused.
         var buffer = t_buffer ??= new ArrayBufferWriter<byte>(512);
         buffer.ResetWrittenCount();
-        var writer = t_writer ??= new Utf8JsonWriter(buffer, Options);
+        var writer = t_writer ??= new Utf8JsonWriter(buffer, Json.Options);
         writer.Reset(buffer);
         writer.WriteStartObject();
         writer.WriteNumber("v", 1);

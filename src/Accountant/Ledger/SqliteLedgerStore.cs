@@ -400,6 +400,15 @@ public sealed class SqliteLedgerStore : ILedgerStore
             }
             .Select(p => insert.Parameters.Add(p.Name, p.Type)).ToArray();
         insert.Prepare();
+        // A look without search, stage, seconds or release leaves those columns NULL; binding eight NULLs per look
+        // costs about as much as the rest of its row, so such looks go through a statement that names only the others.
+        using var plain = Command("""
+            INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, recorded_at)
+            VALUES ($seq, $holdout, $number, $configuration, $digest, $score, $adaptive, $encoding, $losses, $recorded);
+            """);
+        var plainParameters = parameters.Where(p => p.ParameterName is not ("$search" or "$stage" or "$seconds" or "$guard" or "$released" or "$answered" or "$train"))
+            .Select(p => plain.Parameters.Add(p.ParameterName, p.SqliteType)).ToArray();
+        plain.Prepare();
         using var entry = EntryInsertCommand();
         var (entrySeq, entryKind, entryPrev, entryHash) = (entry.Parameters["$seq"], entry.Parameters["$kind"], entry.Parameters["$prev"], entry.Parameters["$hash"]);
         // Digests and canonical entry bytes depend only on each look and its position, so they are built on every core;
@@ -429,27 +438,37 @@ public sealed class SqliteLedgerStore : ILedgerStore
             entryHash.Value = hash;
             entry.ExecuteNonQuery();
 
-            parameters[0].Value = sequence;
-            parameters[1].Value = holdout.Key;
-            parameters[2].Value = number;
-            parameters[3].Value = look.Configuration;
-            parameters[4].Value = digest;
-            parameters[5].Value = look.Score;
-            parameters[6].Value = look.Adaptive ? 1 : 0;
-            parameters[7].Value = (int)look.LossEncoding;
-            parameters[8].Value = (object?)look.Losses ?? DBNull.Value;
-            parameters[9].Value = (object?)look.Search ?? DBNull.Value;
-            parameters[10].Value = (object?)look.Stage ?? DBNull.Value;
-            parameters[11].Value = (object?)look.Seconds ?? DBNull.Value;
-            parameters[12].Value = recorded;
-            parameters[13].Value = (object?)look.Release?.Guard ?? DBNull.Value;
-            parameters[14].SqliteType = SqliteType.Real;
-            parameters[14].Value = (object?)look.Release?.Value ?? DBNull.Value;
-            parameters[15].SqliteType = SqliteType.Integer;
-            parameters[15].Value = look.Release is { } r ? (r.HoldoutAnswered ? 1 : 0) : DBNull.Value;
-            parameters[16].SqliteType = SqliteType.Real;
-            parameters[16].Value = (object?)look.Release?.TrainScore ?? DBNull.Value;
-            insert.ExecuteNonQuery();
+            var isPlain = look is { Search: null, Stage: null, Seconds: null, Release: null };
+            var bound = isPlain ? plainParameters : parameters;
+            bound[0].Value = sequence;
+            bound[1].Value = holdout.Key;
+            bound[2].Value = number;
+            bound[3].Value = look.Configuration;
+            bound[4].Value = digest;
+            bound[5].Value = look.Score;
+            bound[6].Value = look.Adaptive ? 1 : 0;
+            bound[7].Value = (int)look.LossEncoding;
+            bound[8].Value = (object?)look.Losses ?? DBNull.Value;
+            if (isPlain)
+            {
+                bound[9].Value = recorded;
+                plain.ExecuteNonQuery();
+            }
+            else
+            {
+                parameters[9].Value = (object?)look.Search ?? DBNull.Value;
+                parameters[10].Value = (object?)look.Stage ?? DBNull.Value;
+                parameters[11].Value = (object?)look.Seconds ?? DBNull.Value;
+                parameters[12].Value = recorded;
+                parameters[13].Value = (object?)look.Release?.Guard ?? DBNull.Value;
+                parameters[14].SqliteType = SqliteType.Real;
+                parameters[14].Value = (object?)look.Release?.Value ?? DBNull.Value;
+                parameters[15].SqliteType = SqliteType.Integer;
+                parameters[15].Value = look.Release is { } r ? (r.HoldoutAnswered ? 1 : 0) : DBNull.Value;
+                parameters[16].SqliteType = SqliteType.Real;
+                parameters[16].Value = (object?)look.Release?.TrainScore ?? DBNull.Value;
+                insert.ExecuteNonQuery();
+            }
 
             written.Add(new Look(sequence, number, look.Configuration, digest, look.Score, look.LossEncoding, look.Search, look.Stage, look.Adaptive, recordedAt, look.Seconds, look.Release));
             previous = hash;
