@@ -409,31 +409,22 @@ public sealed class SqliteLedgerStore : ILedgerStore
         var plainParameters = parameters.Where(p => p.ParameterName is not ("$search" or "$stage" or "$seconds" or "$guard" or "$released" or "$answered" or "$train"))
             .Select(p => plain.Parameters.Add(p.ParameterName, p.SqliteType)).ToArray();
         plain.Prepare();
-        using var entry = EntryInsertCommand();
-        var (entrySeq, entryKind, entryPrev, entryHash) = (entry.Parameters["$seq"], entry.Parameters["$kind"], entry.Parameters["$prev"], entry.Parameters["$hash"]);
-        // Digests and canonical entry bytes depend only on each look and its position, so they are built on every core;
-        // only the chain links (each hash covers the previous one) are computed in order.
-        var digests = new string[looks.Count];
-        var entries = new byte[looks.Count][];
+        using var entry = Command("INSERT INTO entries (seq, kind, prev_hash, hash) VALUES ($seq, 'look', $prev, $hash);");
+        var (entrySeq, entryPrev, entryHash) = (entry.Parameters.Add("$seq", SqliteType.Integer), entry.Parameters.Add("$prev", SqliteType.Blob), entry.Parameters.Add("$hash", SqliteType.Blob));
+        entry.Prepare();
         var (firstSequence, firstNumber) = (sequence, number + 1);
-        void Canonical(int i)
+        using var chain = new LookChain(looks, previous, (i, digest) =>
         {
             var look = looks[i];
-            digests[i] = ConfigurationJson.Digest(look.Configuration);
-            entries[i] = Chain.LookEntry(firstSequence + i, holdout.Fingerprint, firstNumber + i, look.Configuration, digests[i], look.Score, look.Adaptive,
+            return Chain.LookEntry(firstSequence + i, holdout.Fingerprint, firstNumber + i, look.Configuration, digest, look.Score, look.Adaptive,
                 look.LossEncoding, look.Losses, look.Search, look.Stage, look.Seconds, recorded, look.Release);
-        }
-
-        if (looks.Count >= 256) Parallel.For(0, looks.Count, Canonical);
-        else for (var i = 0; i < looks.Count; i++) Canonical(i);
+        });
         for (var i = 0; i < looks.Count; i++)
         {
             var look = looks[i];
             number++;
-            var digest = digests[i];
-            var hash = Chain.Link(previous, entries[i]);
+            var (digest, hash) = chain.Take(i);
             entrySeq.Value = sequence;
-            entryKind.Value = "look";
             entryPrev.Value = previous;
             entryHash.Value = hash;
             entry.ExecuteNonQuery();
