@@ -110,8 +110,33 @@ public static class Chain
 
     public static string Timestamp(DateTimeOffset time) => time.ToUniversalTime().ToString("yyyy-MM-dd'T'HH:mm:ss.fffffff'Z'", CultureInfo.InvariantCulture);
 
-    public static DateTimeOffset ParseTimestamp(string text) =>
+    /// <summary>Reads a <see cref="Timestamp"/>. The exact shape it writes is read directly; anything else goes to
+    /// <see cref="DateTimeOffset.ParseExact(string, string, IFormatProvider, DateTimeStyles)"/>, which accepts or refuses it as
+    /// before (its first call costs some 14 ms of setup, a seventh of a one-look 'accountant record').</summary>
+    public static DateTimeOffset ParseTimestamp(string text) => TryReadTimestamp(text) ??
         DateTimeOffset.ParseExact(text, "yyyy-MM-dd'T'HH:mm:ss.fffffff'Z'", CultureInfo.InvariantCulture, DateTimeStyles.AssumeUniversal);
+
+    private static DateTimeOffset? TryReadTimestamp(string text)
+    {
+        if (text.Length != 28 || text[4] != '-' || text[7] != '-' || text[10] != 'T' || text[13] != ':' || text[16] != ':' || text[19] != '.' || text[27] != 'Z') return null;
+        int Digits(int start, int count)
+        {
+            var value = 0;
+            for (var i = start; i < start + count; i++)
+            {
+                var d = text[i] - '0';
+                if ((uint)d > 9) return -1;
+                value = 10 * value + d;
+            }
+
+            return value;
+        }
+
+        int year = Digits(0, 4), month = Digits(5, 2), day = Digits(8, 2), hour = Digits(11, 2), minute = Digits(14, 2), second = Digits(17, 2), ticks = Digits(20, 7);
+        if (year < 1 || month is < 1 or > 12 || day < 1 || day > DateTime.DaysInMonth(year, month) || hour is < 0 or > 23 || minute is < 0 or > 59
+            || second is < 0 or > 59 || ticks < 0) return null;
+        return new DateTimeOffset(new DateTime(year, month, day, hour, minute, second, DateTimeKind.Utc).AddTicks(ticks), TimeSpan.Zero);
+    }
 
     [ThreadStatic] private static ArrayBufferWriter<byte>? t_buffer;
     [ThreadStatic] private static Utf8JsonWriter? t_writer;

@@ -373,7 +373,9 @@ public sealed class SqliteLedgerStore : ILedgerStore
             throw new AccountantException(ErrorKind.Integrity, $"holdout '{holdout.Name}' has damaged examples in the ledger; run 'accountant verify'.");
         }
 
-        return ids.Select((id, i) => new HoldoutExample(id, labels[i])).ToList();
+        var examples = new HoldoutExample[ids.Count];
+        for (var i = 0; i < examples.Length; i++) examples[i] = new HoldoutExample(ids[i], labels[i]);
+        return examples;
     });
 
     public IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks) => Guarded(() =>
@@ -391,14 +393,13 @@ public sealed class SqliteLedgerStore : ILedgerStore
                     $guard, $released, $answered, $train);
             """);
         // Bound with their column's own type, so SQLite stores them without converting text to numbers.
-        var parameters = new (string Name, SqliteType Type)[]
-            {
-                ("$seq", SqliteType.Integer), ("$holdout", SqliteType.Integer), ("$number", SqliteType.Integer), ("$configuration", SqliteType.Text),
-                ("$digest", SqliteType.Text), ("$score", SqliteType.Real), ("$adaptive", SqliteType.Integer), ("$encoding", SqliteType.Integer),
-                ("$losses", SqliteType.Blob), ("$search", SqliteType.Text), ("$stage", SqliteType.Text), ("$seconds", SqliteType.Real), ("$recorded", SqliteType.Text),
-                ("$guard", SqliteType.Text), ("$released", SqliteType.Real), ("$answered", SqliteType.Integer), ("$train", SqliteType.Real),
-            }
-            .Select(p => insert.Parameters.Add(p.Name, p.Type)).ToArray();
+        // (Names and types in two arrays rather than tuples: no generic code over a tuple is compiled at run time for one record.)
+        string[] names = ["$seq", "$holdout", "$number", "$configuration", "$digest", "$score", "$adaptive", "$encoding", "$losses", "$search", "$stage", "$seconds", "$recorded",
+            "$guard", "$released", "$answered", "$train"];
+        SqliteType[] types = [SqliteType.Integer, SqliteType.Integer, SqliteType.Integer, SqliteType.Text, SqliteType.Text, SqliteType.Real, SqliteType.Integer, SqliteType.Integer,
+            SqliteType.Blob, SqliteType.Text, SqliteType.Text, SqliteType.Real, SqliteType.Text, SqliteType.Text, SqliteType.Real, SqliteType.Integer, SqliteType.Real];
+        var parameters = new SqliteParameter[names.Length];
+        for (var p = 0; p < names.Length; p++) parameters[p] = insert.Parameters.Add(names[p], types[p]);
         insert.Prepare();
         // A look without search, stage, seconds or release leaves those columns NULL; binding eight NULLs per look
         // costs about as much as the rest of its row, so such looks go through a statement that names only the others.
