@@ -17,13 +17,21 @@ internal static class InputFiles
     }
 
     /// <summary>Predictions as CSV: an id column, a prediction column and, optionally, the label the predictor saw.</summary>
-    public static List<Prediction> Predictions(string path, string idColumn = "id", string predictionColumn = "prediction", string labelColumn = "label")
+    public static Prediction[] Predictions(string path, string idColumn = "id", string predictionColumn = "prediction", string labelColumn = "label")
     {
         var table = CsvTable.Load(path);
         var id = table.Column(idColumn, "--id-column");
         var prediction = table.Column(predictionColumn, "--prediction-column");
-        int? label = table.Has(labelColumn) ? table.Column(labelColumn, "--label-column") : null;
-        return table.Rows.Select(row => new Prediction(row[id], row[prediction], label is { } l ? row[l] : null)).ToList();
+        var label = table.Has(labelColumn) ? table.Column(labelColumn, "--label-column") : -1;
+        // An array filled in a loop: a list of this value type would be compiled at run time on every 'accountant record'.
+        var predictions = new Prediction[table.Rows.Count];
+        for (var i = 0; i < predictions.Length; i++)
+        {
+            var row = table.Rows[i];
+            predictions[i] = new Prediction(row[id], row[prediction], label >= 0 ? row[label] : null);
+        }
+
+        return predictions;
     }
 
     /// <summary>A configuration given inline, or as @file.json.</summary>
@@ -120,7 +128,7 @@ internal static class InputFiles
                 }
 
                 double? value = null;
-                List<Prediction>? predicted = null;
+                Prediction[]? predicted = null;
                 if (hasScore)
                 {
                     if (score.ValueKind != JsonValueKind.Number || !score.TryGetDouble(out var parsed))

@@ -21,7 +21,8 @@ public sealed class CsvTable
         Header = header;
         Rows = rows;
         Lines = lines;
-        _columns = header.Select((name, i) => (name, i)).ToDictionary(p => p.name, p => p.i, StringComparer.Ordinal);
+        _columns = new Dictionary<string, int>(header.Count, StringComparer.Ordinal);
+        for (var i = 0; i < header.Count; i++) _columns[header[i]] = i;
     }
 
     public string Source { get; }
@@ -100,7 +101,10 @@ public sealed class CsvTable
 
     public static CsvTable Parse(string text, string source)
     {
-        var records = new List<(List<string> Fields, int Line)>();
+        // Fields and starting line of each record, kept apart (not as tuples) so that no generic code over a value type
+        // is compiled at run time: ReadyToRun code covers these, and a one-off command pays no JIT for them.
+        var records = new List<List<string>>();
+        var recordLines = new List<int>();
         var fields = new List<string>();
         var field = new StringBuilder();
         var line = 1;
@@ -124,7 +128,8 @@ public sealed class CsvTable
             // A line with nothing on it is skipped (a trailing newline, or blank lines).
             if (!(fields.Count == 1 && fields[0].Length == 0))
             {
-                records.Add((fields, recordLine));
+                records.Add(fields);
+                recordLines.Add(recordLine);
             }
 
             fields = new List<string>();
@@ -210,13 +215,13 @@ public sealed class CsvTable
             throw AccountantException.BadInput($"'{source}' is empty; give a CSV file with a header row and at least one data row.");
         }
 
-        var header = records[0].Fields.Select(h => h.Trim()).ToList();
+        var header = records[0].Select(h => h.Trim()).ToList();
         var names = new HashSet<string>(StringComparer.Ordinal);
         foreach (var name in header)
         {
             if (name.Length == 0)
             {
-                throw AccountantException.BadInput($"'{source}' has an empty column name in its header (line {records[0].Line}); name every column.");
+                throw AccountantException.BadInput($"'{source}' has an empty column name in its header (line {recordLines[0]}); name every column.");
             }
 
             if (!names.Add(name))
@@ -227,8 +232,9 @@ public sealed class CsvTable
 
         var rows = new List<string[]>(records.Count - 1);
         var lines = new List<int>(records.Count - 1);
-        foreach (var (rowFields, rowLine) in records.Skip(1))
+        for (var r = 1; r < records.Count; r++)
         {
+            var (rowFields, rowLine) = (records[r], recordLines[r]);
             if (rowFields.Count != header.Count)
             {
                 throw AccountantException.BadInput($"'{source}' line {rowLine} has {rowFields.Count} fields but the header has {header.Count}; quote fields that contain commas, and give every row all columns.");

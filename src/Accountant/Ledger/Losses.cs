@@ -34,8 +34,9 @@ public static class Losses
         for (var i = 0; i < examples.Count; i++) index[examples[i].Id] = i;
 
         var seen = new string?[examples.Count];
-        foreach (var prediction in predictions)
+        for (var k = 0; k < predictions.Count; k++)
         {
+            var prediction = predictions[k];
             var id = prediction.Id.Trim();
             if (!index.TryGetValue(id, out var i))
             {

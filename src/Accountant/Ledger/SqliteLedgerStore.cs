@@ -373,7 +373,9 @@ public sealed class SqliteLedgerStore : ILedgerStore
             throw new AccountantException(ErrorKind.Integrity, $"holdout '{holdout.Name}' has damaged examples in the ledger; run 'accountant verify'.");
         }
 
-        return ids.Select((id, i) => new HoldoutExample(id, labels[i])).ToList();
+        var examples = new HoldoutExample[ids.Count];
+        for (var i = 0; i < examples.Length; i++) examples[i] = new HoldoutExample(ids[i], labels[i]);
+        return examples;
     });
 
     public IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks) => Guarded(() =>
@@ -391,65 +393,74 @@ public sealed class SqliteLedgerStore : ILedgerStore
                     $guard, $released, $answered, $train);
             """);
         // Bound with their column's own type, so SQLite stores them without converting text to numbers.
-        var parameters = new (string Name, SqliteType Type)[]
-            {
-                ("$seq", SqliteType.Integer), ("$holdout", SqliteType.Integer), ("$number", SqliteType.Integer), ("$configuration", SqliteType.Text),
-                ("$digest", SqliteType.Text), ("$score", SqliteType.Real), ("$adaptive", SqliteType.Integer), ("$encoding", SqliteType.Integer),
-                ("$losses", SqliteType.Blob), ("$search", SqliteType.Text), ("$stage", SqliteType.Text), ("$seconds", SqliteType.Real), ("$recorded", SqliteType.Text),
-                ("$guard", SqliteType.Text), ("$released", SqliteType.Real), ("$answered", SqliteType.Integer), ("$train", SqliteType.Real),
-            }
-            .Select(p => insert.Parameters.Add(p.Name, p.Type)).ToArray();
+        // (Names and types in two arrays rather than tuples: no generic code over a tuple is compiled at run time for one record.)
+        string[] names = ["$seq", "$holdout", "$number", "$configuration", "$digest", "$score", "$adaptive", "$encoding", "$losses", "$search", "$stage", "$seconds", "$recorded",
+            "$guard", "$released", "$answered", "$train"];
+        SqliteType[] types = [SqliteType.Integer, SqliteType.Integer, SqliteType.Integer, SqliteType.Text, SqliteType.Text, SqliteType.Real, SqliteType.Integer, SqliteType.Integer,
+            SqliteType.Blob, SqliteType.Text, SqliteType.Text, SqliteType.Real, SqliteType.Text, SqliteType.Text, SqliteType.Real, SqliteType.Integer, SqliteType.Real];
+        var parameters = new SqliteParameter[names.Length];
+        for (var p = 0; p < names.Length; p++) parameters[p] = insert.Parameters.Add(names[p], types[p]);
         insert.Prepare();
-        using var entry = EntryInsertCommand();
-        var (entrySeq, entryKind, entryPrev, entryHash) = (entry.Parameters["$seq"], entry.Parameters["$kind"], entry.Parameters["$prev"], entry.Parameters["$hash"]);
-        // Digests and canonical entry bytes depend only on each look and its position, so they are built on every core;
-        // only the chain links (each hash covers the previous one) are computed in order.
-        var digests = new string[looks.Count];
-        var entries = new byte[looks.Count][];
+        // A look without search, stage, seconds or release leaves those columns NULL; binding eight NULLs per look
+        // costs about as much as the rest of its row, so such looks go through a statement that names only the others.
+        using var plain = Command("""
+            INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, recorded_at)
+            VALUES ($seq, $holdout, $number, $configuration, $digest, $score, $adaptive, $encoding, $losses, $recorded);
+            """);
+        var plainParameters = parameters.Where(p => p.ParameterName is not ("$search" or "$stage" or "$seconds" or "$guard" or "$released" or "$answered" or "$train"))
+            .Select(p => plain.Parameters.Add(p.ParameterName, p.SqliteType)).ToArray();
+        plain.Prepare();
+        using var entry = Command("INSERT INTO entries (seq, kind, prev_hash, hash) VALUES ($seq, 'look', $prev, $hash);");
+        var (entrySeq, entryPrev, entryHash) = (entry.Parameters.Add("$seq", SqliteType.Integer), entry.Parameters.Add("$prev", SqliteType.Blob), entry.Parameters.Add("$hash", SqliteType.Blob));
+        entry.Prepare();
         var (firstSequence, firstNumber) = (sequence, number + 1);
-        void Canonical(int i)
+        using var chain = new LookChain(looks, previous, (i, digest) =>
         {
             var look = looks[i];
-            digests[i] = ConfigurationJson.Digest(look.Configuration);
-            entries[i] = Chain.LookEntry(firstSequence + i, holdout.Fingerprint, firstNumber + i, look.Configuration, digests[i], look.Score, look.Adaptive,
+            return Chain.LookEntry(firstSequence + i, holdout.Fingerprint, firstNumber + i, look.Configuration, digest, look.Score, look.Adaptive,
                 look.LossEncoding, look.Losses, look.Search, look.Stage, look.Seconds, recorded, look.Release);
-        }
-
-        if (looks.Count >= 256) Parallel.For(0, looks.Count, Canonical);
-        else for (var i = 0; i < looks.Count; i++) Canonical(i);
+        });
         for (var i = 0; i < looks.Count; i++)
         {
             var look = looks[i];
             number++;
-            var digest = digests[i];
-            var hash = Chain.Link(previous, entries[i]);
+            var (digest, hash) = chain.Take(i);
             entrySeq.Value = sequence;
-            entryKind.Value = "look";
             entryPrev.Value = previous;
             entryHash.Value = hash;
             entry.ExecuteNonQuery();
 
-            parameters[0].Value = sequence;
-            parameters[1].Value = holdout.Key;
-            parameters[2].Value = number;
-            parameters[3].Value = look.Configuration;
-            parameters[4].Value = digest;
-            parameters[5].Value = look.Score;
-            parameters[6].Value = look.Adaptive ? 1 : 0;
-            parameters[7].Value = (int)look.LossEncoding;
-            parameters[8].Value = (object?)look.Losses ?? DBNull.Value;
-            parameters[9].Value = (object?)look.Search ?? DBNull.Value;
-            parameters[10].Value = (object?)look.Stage ?? DBNull.Value;
-            parameters[11].Value = (object?)look.Seconds ?? DBNull.Value;
-            parameters[12].Value = recorded;
-            parameters[13].Value = (object?)look.Release?.Guard ?? DBNull.Value;
-            parameters[14].SqliteType = SqliteType.Real;
-            parameters[14].Value = (object?)look.Release?.Value ?? DBNull.Value;
-            parameters[15].SqliteType = SqliteType.Integer;
-            parameters[15].Value = look.Release is { } r ? (r.HoldoutAnswered ? 1 : 0) : DBNull.Value;
-            parameters[16].SqliteType = SqliteType.Real;
-            parameters[16].Value = (object?)look.Release?.TrainScore ?? DBNull.Value;
-            insert.ExecuteNonQuery();
+            var isPlain = look is { Search: null, Stage: null, Seconds: null, Release: null };
+            var bound = isPlain ? plainParameters : parameters;
+            bound[0].Value = sequence;
+            bound[1].Value = holdout.Key;
+            bound[2].Value = number;
+            bound[3].Value = look.Configuration;
+            bound[4].Value = digest;
+            bound[5].Value = look.Score;
+            bound[6].Value = look.Adaptive ? 1 : 0;
+            bound[7].Value = (int)look.LossEncoding;
+            bound[8].Value = (object?)look.Losses ?? DBNull.Value;
+            if (isPlain)
+            {
+                bound[9].Value = recorded;
+                plain.ExecuteNonQuery();
+            }
+            else
+            {
+                parameters[9].Value = (object?)look.Search ?? DBNull.Value;
+                parameters[10].Value = (object?)look.Stage ?? DBNull.Value;
+                parameters[11].Value = (object?)look.Seconds ?? DBNull.Value;
+                parameters[12].Value = recorded;
+                parameters[13].Value = (object?)look.Release?.Guard ?? DBNull.Value;
+                parameters[14].SqliteType = SqliteType.Real;
+                parameters[14].Value = (object?)look.Release?.Value ?? DBNull.Value;
+                parameters[15].SqliteType = SqliteType.Integer;
+                parameters[15].Value = look.Release is { } r ? (r.HoldoutAnswered ? 1 : 0) : DBNull.Value;
+                parameters[16].SqliteType = SqliteType.Real;
+                parameters[16].Value = (object?)look.Release?.TrainScore ?? DBNull.Value;
+                insert.ExecuteNonQuery();
+            }
 
             written.Add(new Look(sequence, number, look.Configuration, digest, look.Score, look.LossEncoding, look.Search, look.Stage, look.Adaptive, recordedAt, look.Seconds, look.Release));
             previous = hash;
