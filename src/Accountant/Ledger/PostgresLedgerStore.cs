@@ -337,33 +337,28 @@ public sealed class PostgresLedgerStore : ILedgerStore
         var recorded = Chain.Timestamp(_clock.GetUtcNow());
         var recordedAt = Chain.ParseTimestamp(recorded);
 
-        // Digests and canonical entry bytes depend only on each look and its position, so they are built on every core;
-        // only the chain links (each hash covers the previous one) are computed in order.
-        var digests = new string[looks.Count];
-        var entries = new byte[looks.Count][];
+        // Each look's digest, canonical entry and chain hash, in order; for a large batch a worker thread computes them
+        // ahead of the rows being sent (see LookChain), so hashing and the COPY overlap.
         var (firstSequence, firstNumber) = (sequence, number + 1);
-        void Canonical(int i)
+        using var chain = new LookChain(looks, previous, (i, digest) =>
         {
             var look = looks[i];
-            digests[i] = ConfigurationJson.Digest(look.Configuration);
-            entries[i] = Chain.LookEntry(firstSequence + i, holdout.Fingerprint, firstNumber + i, look.Configuration, digests[i], look.Score, look.Adaptive,
+            return Chain.LookEntry(firstSequence + i, holdout.Fingerprint, firstNumber + i, look.Configuration, digest, look.Score, look.Adaptive,
                 look.LossEncoding, look.Losses, look.Search, look.Stage, look.Seconds, recorded, look.Release);
-        }
-
-        if (looks.Count >= 256) Parallel.For(0, looks.Count, Canonical);
-        else for (var i = 0; i < looks.Count; i++) Canonical(i);
-
+        });
+        var digests = new string[looks.Count];
         var links = new (byte[] Previous, byte[] Hash)[looks.Count];
-        for (var i = 0; i < looks.Count; i++)
+        (byte[] Previous, byte[] Hash) Link(int i)
         {
-            var hash = Chain.Link(previous, entries[i]);
-            links[i] = (previous, hash);
-            previous = hash;
+            var (digest, hash) = chain.Take(i);
+            digests[i] = digest;
+            links[i] = (i == 0 ? previous : links[i - 1].Hash, hash);
+            return links[i];
         }
 
         if (looks.Count >= CopyBatch)
         {
-            CopyLooks(holdout, looks, digests, links, firstSequence, firstNumber, recorded);
+            CopyLooks(holdout, looks, Link, digests, firstSequence, firstNumber, recorded);
         }
         else
         {
@@ -371,6 +366,7 @@ public sealed class PostgresLedgerStore : ILedgerStore
             using var batch = new NpgsqlBatch(_connection);
             for (var i = 0; i < looks.Count; i++)
             {
+                Link(i);
                 batch.BatchCommands.Add(EntryInsert(firstSequence + i, "look", links[i].Previous, links[i].Hash));
                 batch.BatchCommands.Add(LookInsert(holdout.Key, firstSequence + i, firstNumber + i, looks[i], digests[i], recorded));
             }
@@ -383,17 +379,19 @@ public sealed class PostgresLedgerStore : ILedgerStore
             look.Search, look.Stage, look.Adaptive, recordedAt, look.Seconds, look.Release)).ToList();
     });
 
-    private void CopyLooks(Holdout holdout, IReadOnlyList<NewLook> looks, string[] digests, (byte[] Previous, byte[] Hash)[] links, long firstSequence, int firstNumber, string recorded)
+    /// <summary>Sends the batch by binary COPY: the chain entries as <paramref name="link"/> yields them, then the looks.</summary>
+    private void CopyLooks(Holdout holdout, IReadOnlyList<NewLook> looks, Func<int, (byte[] Previous, byte[] Hash)> link, string[] digests, long firstSequence, int firstNumber, string recorded)
     {
         using (var writer = _connection.BeginBinaryImport("COPY entries (seq, kind, prev_hash, hash) FROM STDIN (FORMAT BINARY);"))
         {
             for (var i = 0; i < looks.Count; i++)
             {
+                var (previous, hash) = link(i);
                 writer.StartRow();
                 writer.Write(firstSequence + i, NpgsqlDbType.Bigint);
                 writer.Write("look", NpgsqlDbType.Text);
-                writer.Write(links[i].Previous, NpgsqlDbType.Bytea);
-                writer.Write(links[i].Hash, NpgsqlDbType.Bytea);
+                writer.Write(previous, NpgsqlDbType.Bytea);
+                writer.Write(hash, NpgsqlDbType.Bytea);
             }
 
             writer.Complete();
