@@ -55,7 +55,7 @@ public sealed record LookInput
 /// var statement = book.Statement("validation");
 /// </code>
 /// </example>
-public sealed class Bookkeeper : IDisposable
+public sealed partial class Bookkeeper : IDisposable
 {
     public const int MaxNameLength = 200;
 

@@ -90,7 +90,7 @@ public sealed class TabularSearchTests : IDisposable
         Assert.Equal(5, looks.Count);
         Assert.All(looks, l => Assert.True(l.HasLosses && l.Seconds is not null && !l.Adaptive));
 
-        var record = SearchRecord.Read(TabularSearch.RecordPathFor(Ledger, holdout.Name));
+        var record = SearchRecord.Read(TabularSearch.RecordPathFor(book.Store, holdout.Name));
         var search = new TabularSearch(book, Ledger);
         var first = search.ScoreTest(record);
         book.RecordOpening(holdout.Name, record.Look, first.Rows, first.Fingerprint, first.Score);
