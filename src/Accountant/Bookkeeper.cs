@@ -72,15 +72,14 @@ public sealed partial class Bookkeeper : IDisposable
     // Thresholdout's noisy threshold, kept between looks of one stream for as long as this object lives.
     private readonly Dictionary<string, ThresholdoutNoise> _thresholds = new(StringComparer.Ordinal);
 
-    /// <summary>Creates a new SQLite ledger file.</summary>
-    public static Bookkeeper Create(string path, TimeProvider? clock = null) => new(SqliteLedgerStore.Create(path, clock));
+    /// <summary>Creates a new ledger: a SQLite file path, or a PostgreSQL address (see <see cref="LedgerLocation"/>).</summary>
+    public static Bookkeeper Create(string location, TimeProvider? clock = null) => new(LedgerStores.Create(location, clock));
 
-    /// <summary>Opens an existing SQLite ledger file.</summary>
-    public static Bookkeeper Open(string path, TimeProvider? clock = null) => new(SqliteLedgerStore.Open(path, clock));
+    /// <summary>Opens an existing ledger: a SQLite file path, or a PostgreSQL address.</summary>
+    public static Bookkeeper Open(string location, TimeProvider? clock = null) => new(LedgerStores.Open(location, clock));
 
-    /// <summary>Opens a SQLite ledger, creating it first when it does not exist.</summary>
-    public static Bookkeeper OpenOrCreate(string path, TimeProvider? clock = null) =>
-        File.Exists(path) ? Open(path, clock) : Create(path, clock);
+    /// <summary>Opens the ledger, creating it first when there is none.</summary>
+    public static Bookkeeper OpenOrCreate(string location, TimeProvider? clock = null) => new(LedgerStores.OpenOrCreate(location, clock));
 
     /// <summary>
     /// Registers a validation set. Ids are trimmed and must be unique and non-empty; labels are canonicalized

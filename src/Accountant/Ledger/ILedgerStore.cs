@@ -9,7 +9,7 @@ namespace Accountant.Ledger;
 /// </summary>
 public interface ILedgerStore : IDisposable
 {
-    /// <summary>Where the ledger lives (a file path), for messages.</summary>
+    /// <summary>Where the ledger lives (a file path or a PostgreSQL address without its password), for messages.</summary>
     string Location { get; }
 
     /// <summary>Registers a holdout. Examples are sorted by id (ordinal) with canonical labels.</summary>
@@ -58,4 +58,13 @@ public interface ILedgerStore : IDisposable
 
     /// <summary>Recomputes the chain from the stored rows and names the first entry that does not match.</summary>
     ChainReport Verify(string? expectedHead = null);
+
+    /// <summary>The stored rows as they are, read from one snapshot: for verification and for copying to another backend.</summary>
+    ILedgerRows Rows();
+
+    /// <summary>
+    /// Writes another ledger's rows into this one, which must be empty, unchanged and in one transaction, and commits only
+    /// when the chain recomputed from the written rows verifies and (when given) contains <paramref name="expectedHead"/>.
+    /// </summary>
+    ChainReport Import(ILedgerRows source, string? expectedHead);
 }

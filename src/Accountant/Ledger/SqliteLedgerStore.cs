@@ -561,7 +561,7 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
         reader.GetInt32(8) != 0,
         Chain.ParseTimestamp(reader.GetString(9)),
         reader.IsDBNull(10) ? null : reader.GetDouble(10),
-        ReadRelease(reader, 11));
+        DbLedgerRows.ReadRelease(reader, 11));
 
     /// <summary>
     /// Counts in one pass inside SQLite (only columns stored before the losses blob are read, so no blob is touched),
@@ -622,15 +622,6 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
         return new Statements.LookTally(looks, adaptive, scoreOnly, best, pattern);
     });
 
-    /// <summary>Reads the four release columns starting at <paramref name="first"/>; null when the look had no guard.</summary>
-    internal static Released? ReadRelease(SqliteDataReader reader, int first) => reader.IsDBNull(first)
-        ? null
-        : new Released(
-            reader.GetString(first),
-            reader.IsDBNull(first + 1) ? null : reader.GetDouble(first + 1),
-            !reader.IsDBNull(first + 2) && reader.GetInt32(first + 2) != 0,
-            reader.IsDBNull(first + 3) ? null : reader.GetDouble(first + 3));
-
     public IReadOnlyList<LookVoid> Voids(Holdout holdout) => Guarded(() =>
     {
         using var command = Command("SELECT seq, look_number, reason, recorded_at FROM voids WHERE holdout_id = $id ORDER BY seq;");
@@ -657,7 +648,23 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
         return value is byte[] hash ? Chain.Hex(hash) : null;
     });
 
-    public ChainReport Verify(string? expectedHead = null) => Guarded(() => new SqliteChainVerifier(_connection).Run(expectedHead));
+    public ChainReport Verify(string? expectedHead = null) => Guarded(() => new ChainVerifier(Rows()).Run(expectedHead));
+
+    /// <summary>The stored rows, read from one snapshot (a deferred transaction sees one state of the WAL).</summary>
+    public ILedgerRows Rows() => new DbLedgerRows(_connection, () => _connection.BeginTransaction(deferred: true));
+
+    public ChainReport Import(ILedgerRows source, string? expectedHead) => Guarded(() =>
+    {
+        using var transaction = _connection.BeginTransaction(deferred: false);
+        if (Convert.ToInt64(Scalar("SELECT count(*) FROM entries;"), CultureInfo.InvariantCulture) != 0)
+        {
+            throw new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{Location}' is not empty; copy into a new ledger file.");
+        }
+
+        var report = LedgerCopy.Write(_connection, transaction, source, expectedHead);
+        transaction.Commit();
+        return report;
+    });
 
     private (long Sequence, byte[] Previous) Tail()
     {

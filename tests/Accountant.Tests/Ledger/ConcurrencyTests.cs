@@ -2,15 +2,14 @@ using Accountant.Tests.Support;
 
 namespace Accountant.Tests.Ledger;
 
-public sealed class ConcurrencyTests : IDisposable
+public sealed class ConcurrencyTests
 {
-    private readonly TempLedger _temp = new();
-
-    public void Dispose() => _temp.Dispose();
-
-    [Fact]
-    public void Concurrent_writers_on_separate_connections_get_unique_gapless_numbers_and_a_valid_chain()
+    [Theory]
+    [InlineData(Backend.Sqlite)]
+    [InlineData(Backend.Postgres)]
+    public void Concurrent_writers_on_separate_connections_get_unique_gapless_numbers_and_a_valid_chain(Backend backend)
     {
+        using var _temp = new TempLedger(backend);
         const int writers = 4, looksEach = 40;
         using (var book = _temp.Create())
         {

@@ -5,11 +5,101 @@ using Microsoft.Data.Sqlite;
 
 namespace Accountant.Tests.Ledger;
 
-public sealed class LedgerTests : IDisposable
+/// <summary>The SQLite ledger against the shared ledger tests.</summary>
+public sealed class SqliteLedgerTests() : LedgerTests(Backend.Sqlite)
 {
-    private readonly TempLedger _temp = new();
+    [Fact]
+    public void Files_that_are_not_ledgers_are_refused()
+    {
+        File.WriteAllText(_temp.Path, "id,label\n1,0\n");
+        Assert.Contains("not a SQLite file", Assert.Throws<AccountantException>(() => _temp.Open()).Message);
+        File.Delete(_temp.Path);
+        using (var connection = new SqliteConnection($"Data Source={_temp.Path};Pooling=False"))
+        {
+            connection.Open();
+            using var command = connection.CreateCommand();
+            command.CommandText = "CREATE TABLE t (x);";
+            command.ExecuteNonQuery();
+        }
 
-    public void Dispose() => _temp.Dispose();
+        Assert.Contains("not an Accountant ledger", Assert.Throws<AccountantException>(() => _temp.Open()).Message);
+        Assert.Contains("no ledger at", Assert.Throws<AccountantException>(() => Bookkeeper.Open(Path.Combine(_temp.Folder, "missing.db"))).Message);
+    }
+
+    [Fact]
+    public void A_field_stored_with_the_wrong_type_is_caught_at_its_entry()
+    {
+        // SQLite keeps whatever value it is given (type affinity); PostgreSQL's typed columns cannot hold text in a score.
+        Populate();
+        _temp.Tamper("UPDATE looks SET score = 'low' WHERE number = 2;", "");
+        using var book = _temp.Open();
+        var report = book.Verify();
+        Assert.False(report.Valid);
+        Assert.Equal(3, report.FirstBadEntry); // SQLite reads 'low' as 0, so the entry's contents no longer match its hash.
+    }
+
+    protected override void Unguarded(string sql)
+    {
+        using var connection = new SqliteConnection($"Data Source={_temp.Path};Pooling=False");
+        connection.Open();
+        using var command = connection.CreateCommand();
+        command.CommandText = sql;
+        command.ExecuteNonQuery();
+    }
+}
+
+/// <summary>The PostgreSQL ledger against the same tests (a schema of its own on the tests' throwaway server).</summary>
+public sealed class PostgresLedgerTests() : LedgerTests(Backend.Postgres)
+{
+    [Fact]
+    public void Schemas_that_are_not_ledgers_are_refused()
+    {
+        Assert.Contains("no ledger at", Assert.Throws<AccountantException>(() => _temp.Open()).Message);
+        PostgresServer.Execute("CREATE TABLE t (x integer);", _temp.Location);
+        var error = Assert.Throws<AccountantException>(() => _temp.Open());
+        Assert.Equal(ErrorKind.LedgerUnusable, error.Kind);
+        Assert.Contains("no Accountant ledger", error.Message);
+        Assert.Contains("holds tables", Assert.Throws<AccountantException>(() => _temp.Create()).Message);
+    }
+
+    [Fact]
+    public void Messages_name_the_server_but_never_the_password()
+    {
+        var withPassword = new Npgsql.NpgsqlConnectionStringBuilder(_temp.Location) { Password = "s3cret-Value", Port = 1 }.ConnectionString;
+        var error = Assert.Throws<AccountantException>(() => Bookkeeper.Open(withPassword));
+        Assert.Equal(ErrorKind.LedgerUnusable, error.Kind);
+        Assert.Contains("cannot reach the PostgreSQL server", error.Message);
+        Assert.Contains("postgresql://accountant@127.0.0.1:1/", error.Message);
+        Assert.DoesNotContain("s3cret", error.Message);
+    }
+
+    [Fact]
+    public void Truncate_is_refused_too()
+    {
+        Populate();
+        var error = Assert.Throws<Npgsql.PostgresException>(() => Unguarded("TRUNCATE looks;"));
+        Assert.Contains("append-only", error.MessageText);
+    }
+
+    protected override void Unguarded(string sql) => PostgresServer.Execute(sql, _temp.Location);
+}
+
+/// <summary>
+/// The ledger's rules, run against each backend (one set of tests, two stores). The same operations under the same
+/// clock give the same chain head on both, since the chain bytes come from one place.
+/// </summary>
+public abstract class LedgerTests(Backend backend) : IDisposable
+{
+    protected readonly TempLedger _temp = new(backend);
+
+    public void Dispose()
+    {
+        _temp.Dispose();
+        GC.SuppressFinalize(this);
+    }
+
+    /// <summary>Runs SQL against the stored rows with the ledger's own protections in place.</summary>
+    protected abstract void Unguarded(string sql);
 
     private (Bookkeeper Book, List<HoldoutExample> Examples) WithHoldout(int n = 40)
     {
@@ -167,40 +257,25 @@ public sealed class LedgerTests : IDisposable
     public void A_ledger_with_a_newer_schema_is_refused()
     {
         WithHoldout().Book.Dispose();
-        RawSql("PRAGMA user_version = 99;");
+        _temp.Tamper("PRAGMA user_version = 99;", "UPDATE ledger_meta SET value = '99' WHERE key = 'schema_version';");
         var error = Assert.Throws<AccountantException>(() => _temp.Open());
         Assert.Equal(ErrorKind.LedgerUnusable, error.Kind);
         Assert.Contains("schema version 99", error.Message);
     }
 
     [Fact]
-    public void Files_that_are_not_ledgers_are_refused()
-    {
-        File.WriteAllText(_temp.Path, "id,label\n1,0\n");
-        Assert.Contains("not a SQLite file", Assert.Throws<AccountantException>(() => _temp.Open()).Message);
-        File.Delete(_temp.Path);
-        using (var connection = new SqliteConnection($"Data Source={_temp.Path};Pooling=False"))
-        {
-            connection.Open();
-            using var command = connection.CreateCommand();
-            command.CommandText = "CREATE TABLE t (x);";
-            command.ExecuteNonQuery();
-        }
-
-        Assert.Contains("not an Accountant ledger", Assert.Throws<AccountantException>(() => _temp.Open()).Message);
-        Assert.Contains("no ledger at", Assert.Throws<AccountantException>(() => Bookkeeper.Open(Path.Combine(_temp.Folder, "missing.db"))).Message);
-    }
-
-    [Fact]
     public void Updates_and_deletes_are_refused_by_the_ledger_itself()
     {
         WithHoldout().Book.Dispose();
-        var error = Assert.Throws<SqliteException>(() => RawSql("UPDATE holdouts SET name = 'x';", dropTriggers: false));
-        Assert.Contains("append-only", error.Message);
+        foreach (var sql in new[] { "UPDATE holdouts SET name = 'x';", "DELETE FROM holdouts;", "UPDATE entries SET kind = 'x';", "DELETE FROM entries;" })
+        {
+            var error = Assert.ThrowsAny<System.Data.Common.DbException>(() => Unguarded(sql));
+            Assert.Contains("append-only", error.Message);
+        }
     }
 
     /// <summary>A ledger with a holdout, three looks (one with losses) and a void: six entries.</summary>
-    private void Populate()
+    protected void Populate()
     {
         var (book, examples) = WithHoldout();
         using (book)
@@ -213,28 +288,29 @@ public sealed class LedgerTests : IDisposable
         }
     }
 
-    public static TheoryData<string, string, long> Tampering() => new()
+    /// <summary>Edits, each in the same words for both backends unless a second form is given for PostgreSQL.</summary>
+    public static TheoryData<string, string, string, long> Tampering() => new()
     {
-        { "change a score", "UPDATE looks SET score = 0.01 WHERE number = 3;", 4 },
-        { "change a configuration", """UPDATE looks SET configuration = '{"trainer":"z"}' WHERE number = 2;""", 3 },
-        { "change a configuration and its digest", """UPDATE looks SET configuration = '{"trainer":"z"}', configuration_digest = 'e3b0' WHERE number = 2;""", 3 },
-        { "change a loss bit", "UPDATE looks SET losses = zeroblob(5) WHERE number = 1;", 2 },
-        { "change a holdout label", "UPDATE holdouts SET labels = replace(labels, X'31', X'30');", 1 },
-        { "rename the holdout", "UPDATE holdouts SET name = 'other';", 1 },
-        { "delete a look row", "DELETE FROM looks WHERE number = 2;", 3 },
-        { "delete a look with its entry", "DELETE FROM looks WHERE number = 2; DELETE FROM entries WHERE seq = 3;", 3 },
-        { "delete a void", "DELETE FROM voids; DELETE FROM entries WHERE kind = 'void';", 5 },
-        { "reorder two looks", "UPDATE looks SET number = 100 WHERE number = 2; UPDATE looks SET number = 2 WHERE number = 3; UPDATE looks SET number = 3 WHERE number = 100;", 3 },
-        { "insert a forged look", """INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, recorded_at) VALUES (99, 1, 5, '{}', 'x', 0.0, 0, 0, '2026-01-01T00:00:00.0000000Z');""", 99 },
-        { "change a void's reason", "UPDATE voids SET reason = 'never mind';", 5 },
+        { "change a score", "UPDATE looks SET score = 0.01 WHERE number = 3;", "", 4 },
+        { "change a configuration", """UPDATE looks SET configuration = '{"trainer":"z"}' WHERE number = 2;""", "", 3 },
+        { "change a configuration and its digest", """UPDATE looks SET configuration = '{"trainer":"z"}', configuration_digest = 'e3b0' WHERE number = 2;""", "", 3 },
+        { "change a loss bit", "UPDATE looks SET losses = zeroblob(5) WHERE number = 1;", "UPDATE looks SET losses = '\\x0000000000'::bytea WHERE number = 1;", 2 },
+        { "change a holdout label", "UPDATE holdouts SET labels = replace(labels, X'31', X'30');", "UPDATE holdouts SET labels = decode(replace(encode(labels, 'hex'), '31', '30'), 'hex');", 1 },
+        { "rename the holdout", "UPDATE holdouts SET name = 'other';", "", 1 },
+        { "delete a look row", "DELETE FROM looks WHERE number = 2;", "", 3 },
+        { "delete a look with its entry", "DELETE FROM looks WHERE number = 2; DELETE FROM entries WHERE seq = 3;", "", 3 },
+        { "delete a void", "DELETE FROM voids; DELETE FROM entries WHERE kind = 'void';", "", 5 },
+        { "reorder two looks", "UPDATE looks SET number = 100 WHERE number = 2; UPDATE looks SET number = 2 WHERE number = 3; UPDATE looks SET number = 3 WHERE number = 100;", "", 3 },
+        { "insert a forged look", """INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, recorded_at) VALUES (99, 1, 5, '{}', 'x', 0.0, 0, 0, '2026-01-01T00:00:00.0000000Z');""", "", 99 },
+        { "change a void's reason", "UPDATE voids SET reason = 'never mind';", "", 5 },
     };
 
     [Theory]
     [MemberData(nameof(Tampering))]
-    public void Verify_detects_plain_sql_edits_and_names_the_first_bad_entry(string what, string sql, long firstBad)
+    public void Verify_detects_plain_sql_edits_and_names_the_first_bad_entry(string what, string sqliteSql, string postgresSql, long firstBad)
     {
         Populate();
-        RawSql(sql);
+        _temp.Tamper(sqliteSql, postgresSql.Length > 0 ? postgresSql : sqliteSql);
         using var book = _temp.Open();
         var report = book.Verify();
         Assert.False(report.Valid, what);
@@ -248,22 +324,13 @@ public sealed class LedgerTests : IDisposable
         Populate();
         string head;
         using (var book = _temp.Open()) head = book.Store.ChainHead()!;
-        RawSql("DELETE FROM looks WHERE number = 4; DELETE FROM entries WHERE seq = 6;");
+        const string cut = "DELETE FROM looks WHERE number = 4; DELETE FROM entries WHERE seq = 6;";
+        _temp.Tamper(cut, cut);
         using var reopened = _temp.Open();
         Assert.True(reopened.Verify().Valid); // A clean cut looks like a shorter ledger...
         var report = reopened.Verify(head);   // ...but not against the head a statement printed.
         Assert.False(report.Valid);
         Assert.Contains("truncated", report.Problem);
         Assert.True(reopened.Verify(reopened.Store.ChainHead()).Valid);
-    }
-
-    private void RawSql(string sql, bool dropTriggers = true)
-    {
-        using var connection = new SqliteConnection($"Data Source={_temp.Path};Pooling=False");
-        connection.Open();
-        using var command = connection.CreateCommand();
-        var drop = string.Join("", new[] { "entries", "holdouts", "looks", "voids" }.Select(t => $"DROP TRIGGER IF EXISTS {t}_no_update; DROP TRIGGER IF EXISTS {t}_no_delete;"));
-        command.CommandText = (dropTriggers ? drop : "") + sql;
-        command.ExecuteNonQuery();
     }
 }

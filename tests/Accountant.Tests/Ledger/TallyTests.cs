@@ -4,18 +4,20 @@ using Accountant.Tests.Support;
 
 namespace Accountant.Tests.Ledger;
 
-/// <summary>The SQLite tally (counts and the best look computed in the database) against the definition, look by look.</summary>
+/// <summary>Each backend's tally (counts and the best look computed in the database) against the definition, look by look.</summary>
 public class TallyTests
 {
     /// <summary>A store that keeps the interface's default tally, which reads every look.</summary>
     private sealed class DefaultTally(ILedgerStore inner) : ForwardingStore(inner);
 
     [Theory]
-    [InlineData(Metric.Error)]
-    [InlineData(Metric.Accuracy)]
-    public void The_database_tally_equals_the_look_by_look_definition(Metric metric)
+    [InlineData(Metric.Error, Backend.Sqlite)]
+    [InlineData(Metric.Accuracy, Backend.Sqlite)]
+    [InlineData(Metric.Error, Backend.Postgres)]
+    [InlineData(Metric.Accuracy, Backend.Postgres)]
+    public void The_database_tally_equals_the_look_by_look_definition(Metric metric, Backend backend)
     {
-        using var temp = new TempLedger();
+        using var temp = new TempLedger(backend);
         var examples = TempLedger.Examples(50);
         using var book = temp.Create();
         book.RegisterHoldout("v", examples, metric);
@@ -50,10 +52,12 @@ public class TallyTests
         Assert.Equal(fromLooks.Warnings, fromTally.Warnings);
     }
 
-    [Fact]
-    public void A_holdout_whose_looks_are_all_voided_has_no_best()
+    [Theory]
+    [InlineData(Backend.Sqlite)]
+    [InlineData(Backend.Postgres)]
+    public void A_holdout_whose_looks_are_all_voided_has_no_best(Backend backend)
     {
-        using var temp = new TempLedger();
+        using var temp = new TempLedger(backend);
         var examples = TempLedger.Examples(10);
         using var book = temp.Create();
         book.RegisterHoldout("v", examples);

@@ -9,27 +9,33 @@ namespace Accountant.Tests.Reliability;
 /// Another writer holds the ledger's write lock. Within the busy timeout a write waits (SQLite retries with growing
 /// pauses) and then succeeds; only a lock held beyond it ends in one clear error, and nothing is written.
 /// </summary>
-public sealed class LockTests : IDisposable
+public sealed class LockTests
 {
-    private readonly TempLedger _temp = new();
-
-    public void Dispose() => _temp.Dispose();
-
-    private SqliteConnection HoldWriteLock()
+    /// <summary>Another connection takes the lock a writer takes: BEGIN IMMEDIATE on SQLite, the chain's table lock on PostgreSQL.</summary>
+    private static System.Data.Common.DbConnection HoldWriteLock(TempLedger temp)
     {
-        var holder = new SqliteConnection($"Data Source={_temp.Path};Pooling=False");
+        System.Data.Common.DbConnection holder = temp.Backend == Backend.Postgres
+            ? new Npgsql.NpgsqlConnection(temp.Location)
+            : new SqliteConnection($"Data Source={temp.Path};Pooling=False");
         holder.Open();
         using var begin = holder.CreateCommand();
-        begin.CommandText = "BEGIN IMMEDIATE;";
+        begin.CommandText = temp.Backend == Backend.Postgres ? "BEGIN; LOCK TABLE entries IN EXCLUSIVE MODE;" : "BEGIN IMMEDIATE;";
         begin.ExecuteNonQuery();
         return holder;
     }
 
-    [Fact]
-    public void A_lock_released_within_the_busy_timeout_is_waited_for_and_the_look_is_recorded()
+    private static Bookkeeper OpenWithTimeout(TempLedger temp, TimeSpan timeout) => new(temp.Backend == Backend.Postgres
+        ? PostgresLedgerStore.Open(LedgerLocation.Parse(temp.Location), new FixedClock(), lockTimeout: timeout)
+        : SqliteLedgerStore.Open(temp.Path, new FixedClock(), busyTimeout: timeout));
+
+    [Theory]
+    [InlineData(Backend.Sqlite)]
+    [InlineData(Backend.Postgres)]
+    public void A_lock_released_within_the_busy_timeout_is_waited_for_and_the_look_is_recorded(Backend backend)
     {
+        using var _temp = new TempLedger(backend);
         using (var book = _temp.Create()) book.RegisterHoldout("validation", TempLedger.Examples(10));
-        var holder = HoldWriteLock();
+        var holder = HoldWriteLock(_temp);
         var release = new Thread(() =>
         {
             Thread.Sleep(1500);
@@ -38,7 +44,7 @@ public sealed class LockTests : IDisposable
         release.Start();
 
         var timer = Stopwatch.StartNew();
-        using (var book = new Bookkeeper(SqliteLedgerStore.Open(_temp.Path, new FixedClock(), busyTimeout: TimeSpan.FromSeconds(20))))
+        using (var book = OpenWithTimeout(_temp, TimeSpan.FromSeconds(20)))
         {
             var look = book.Record("validation", "{\"k\":1}", 0.2);
             Assert.Equal(1, look.Number);
@@ -52,9 +58,12 @@ public sealed class LockTests : IDisposable
         Assert.True(reader.Verify().Valid);
     }
 
-    [Fact]
-    public void A_lock_held_beyond_the_busy_timeout_ends_in_one_clear_error_and_writes_nothing()
+    [Theory]
+    [InlineData(Backend.Sqlite)]
+    [InlineData(Backend.Postgres)]
+    public void A_lock_held_beyond_the_busy_timeout_ends_in_one_clear_error_and_writes_nothing(Backend backend)
     {
+        using var _temp = new TempLedger(backend);
         string head;
         using (var book = _temp.Create())
         {
@@ -62,10 +71,10 @@ public sealed class LockTests : IDisposable
             head = book.Store.ChainHead()!;
         }
 
-        using (HoldWriteLock())
+        using (HoldWriteLock(_temp))
         {
             var timer = Stopwatch.StartNew();
-            using var book = new Bookkeeper(SqliteLedgerStore.Open(_temp.Path, new FixedClock(), busyTimeout: TimeSpan.FromSeconds(1)));
+            using var book = OpenWithTimeout(_temp, TimeSpan.FromSeconds(1));
             var error = Assert.Throws<AccountantException>(() => book.Record("validation", "{\"k\":1}", 0.2));
             timer.Stop();
             Assert.Equal(ErrorKind.LedgerUnusable, error.Kind);

@@ -23,5 +23,7 @@ public class ForwardingStore(ILedgerStore inner) : ILedgerStore
     public virtual byte[]? LossBytes(Holdout holdout, int lookNumber) => inner.LossBytes(holdout, lookNumber);
     public string? ChainHead() => inner.ChainHead();
     public ChainReport Verify(string? expectedHead = null) => inner.Verify(expectedHead);
+    public ILedgerRows Rows() => inner.Rows();
+    public ChainReport Import(ILedgerRows source, string? expectedHead) => inner.Import(source, expectedHead);
     public void Dispose() => inner.Dispose();
 }

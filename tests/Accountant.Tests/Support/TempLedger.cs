@@ -1,24 +1,63 @@
 using Accountant.Ledger;
+using Microsoft.Data.Sqlite;
 
 namespace Accountant.Tests.Support;
 
-/// <summary>A ledger file in a fresh temporary folder, deleted afterwards.</summary>
+/// <summary>The two ledger backends; every ledger test runs against both.</summary>
+public enum Backend
+{
+    Sqlite,
+    Postgres,
+}
+
+/// <summary>
+/// A fresh, empty place for a ledger, removed afterwards: a file in a temporary folder (SQLite), or a schema of its own
+/// on the tests' PostgreSQL server (<see cref="PostgresServer"/>).
+/// </summary>
 public sealed class TempLedger : IDisposable
 {
-    public TempLedger()
+    private readonly string? _schema;
+
+    public TempLedger(Backend backend = Backend.Sqlite)
     {
+        Backend = backend;
         Folder = System.IO.Path.Combine(System.IO.Path.GetTempPath(), "accountant-tests-" + Guid.NewGuid().ToString("N"));
         Directory.CreateDirectory(Folder);
         Path = System.IO.Path.Combine(Folder, "ledger.db");
+        Location = backend == Backend.Postgres ? PostgresServer.NewSchema(out _schema) : Path;
     }
 
+    public Backend Backend { get; }
+
+    /// <summary>A temporary folder for files the test writes (for SQLite, the ledger file is in it).</summary>
     public string Folder { get; }
 
+    /// <summary>The SQLite ledger file (unused by a PostgreSQL ledger).</summary>
     public string Path { get; }
 
-    public Bookkeeper Create() => Bookkeeper.Create(Path, new FixedClock());
+    /// <summary>What --ledger would be given: the file path, or a PostgreSQL connection string naming the schema.</summary>
+    public string Location { get; }
 
-    public Bookkeeper Open() => Bookkeeper.Open(Path, new FixedClock());
+    public Bookkeeper Create() => Bookkeeper.Create(Location, new FixedClock());
+
+    public Bookkeeper Open() => Bookkeeper.Open(Location, new FixedClock());
+
+    /// <summary>Edits the stored rows behind the accountant's back, with the append-only triggers out of the way.</summary>
+    public void Tamper(string sqliteSql, string postgresSql)
+    {
+        if (Backend == Backend.Postgres)
+        {
+            PostgresServer.Tamper(Location, postgresSql);
+            return;
+        }
+
+        using var connection = new SqliteConnection($"Data Source={Path};Pooling=False");
+        connection.Open();
+        using var command = connection.CreateCommand();
+        var drop = string.Join("", new[] { "entries", "holdouts", "looks", "voids", "openings" }.Select(t => $"DROP TRIGGER IF EXISTS {t}_no_update; DROP TRIGGER IF EXISTS {t}_no_delete;"));
+        command.CommandText = drop + sqliteSql;
+        command.ExecuteNonQuery();
+    }
 
     /// <summary>Examples "e001".."eNNN" with labels cycling through the given classes.</summary>
     public static List<HoldoutExample> Examples(int n, params string[] classes)
@@ -33,6 +72,11 @@ public sealed class TempLedger : IDisposable
 
     public void Dispose()
     {
+        if (_schema is not null)
+        {
+            try { PostgresServer.DropSchema(_schema); } catch (Npgsql.NpgsqlException) { }
+        }
+
         try { Directory.Delete(Folder, recursive: true); } catch (IOException) { } catch (UnauthorizedAccessException) { }
     }
 }
