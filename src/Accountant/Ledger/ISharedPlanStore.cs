@@ -8,9 +8,10 @@ namespace Accountant.Ledger;
 /// design, and not part of the hash chain; the looks that tasks produce are appended to the chain like any other look.
 /// </summary>
 /// <remarks>
-/// <para>Every method is one transaction. Times (lease expiry) are taken from one clock per backend: the SQLite store uses
-/// its <see cref="TimeProvider"/>, which on one machine every worker shares; a server backend should use the server's own
-/// clock (<c>now()</c>), so that workers on machines whose clocks disagree still agree on when a lease ran out.</para>
+/// <para>Every method is one transaction. Lease times are read from the store's <see cref="TimeProvider"/> (the worker's
+/// clock). Nothing that is counted depends on clocks agreeing: a worker whose clock runs ahead may take over a task whose
+/// lease has not really run out, and then the configuration is trained twice, but <see cref="Complete"/> records only the
+/// first completion, so it is still counted once. Clocks kept by NTP agree far within a lease of minutes.</para>
 /// <para>Task numbers run 1, 2, 3, … per plan in the order tasks were added; stage 0 is the plan's first stage.</para>
 /// <para>Failures the user can act on are <see cref="AccountantException"/>s, and leave the plan and the ledger as they were.</para>
 /// </remarks>

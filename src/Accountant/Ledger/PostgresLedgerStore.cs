@@ -14,7 +14,7 @@ namespace Accountant.Ledger;
 /// MODE</c>, a lock held until commit or rollback, so appends are serialized by the server (readers are not blocked)
 /// and look numbers stay gapless under any number of concurrent writers.
 /// </summary>
-public sealed class PostgresLedgerStore : ILedgerStore
+public sealed partial class PostgresLedgerStore : ILedgerStore
 {
     /// <summary>The schema version this build writes; kept in the <c>ledger_meta</c> table. Same numbering as SQLite.</summary>
     public const int SchemaVersion = SqliteLedgerStore.SchemaVersion;
@@ -318,6 +318,14 @@ public sealed class PostgresLedgerStore : ILedgerStore
     public IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks) => Guarded(() =>
     {
         using var transaction = BeginWrite();
+        var written = AppendLooksInTransaction(holdout, looks);
+        transaction.Commit();
+        return written;
+    });
+
+    /// <summary>The work of <see cref="AppendLooks"/> inside a write transaction (holding the chain lock) the caller began and will commit.</summary>
+    private List<Look> AppendLooksInTransaction(Holdout holdout, IReadOnlyList<NewLook> looks)
+    {
         var number = Convert.ToInt32(ScalarWith("SELECT COALESCE(MAX(number), 0) FROM looks WHERE holdout_id = @id;", ("id", holdout.Key)), CultureInfo.InvariantCulture);
         var (sequence, previous) = Tail();
         var recorded = Chain.Timestamp(_clock.GetUtcNow());
@@ -360,10 +368,9 @@ public sealed class PostgresLedgerStore : ILedgerStore
             }
         }
 
-        transaction.Commit();
         return looks.Select((look, i) => new Look(firstSequence + i, firstNumber + i, look.Configuration, digests[i], look.Score, look.LossEncoding,
             look.Search, look.Stage, look.Adaptive, recordedAt, look.Seconds, look.Release)).ToList();
-    });
+    }
 
     private void CopyLooks(Holdout holdout, IReadOnlyList<NewLook> looks, string[] digests, (byte[] Previous, byte[] Hash)[] links, long firstSequence, int firstNumber, string recorded)
     {

@@ -298,3 +298,22 @@ public sealed class SqliteSharedPlanTests : SharedPlanContract, IDisposable
         Assert.Equal(2, report.Entries); // the holdout and the one look
     }
 }
+
+/// <summary>The same contract on the PostgreSQL backend (a schema of its own on the tests' throwaway server).</summary>
+public sealed class PostgresSharedPlanTests : SharedPlanContract, IDisposable
+{
+    private readonly TempLedger _temp = new(Backend.Postgres);
+    private bool _created;
+
+    protected override Bookkeeper Open(TimeProvider clock)
+    {
+        lock (_temp)
+        {
+            if (_created) return Bookkeeper.Open(_temp.Location, clock);
+            _created = true;
+            return Bookkeeper.Create(_temp.Location, clock);
+        }
+    }
+
+    public void Dispose() => _temp.Dispose();
+}
