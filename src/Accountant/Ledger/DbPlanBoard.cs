@@ -226,3 +226,27 @@ internal sealed class DbPlanBoard(DbConnection connection, TimeProvider clock, B
         return command;
     }
 }
+
+/// <summary>A ledger store whose <see cref="ISharedPlanStore"/> is a <see cref="DbPlanBoard"/>, each call under the store's own error translation.</summary>
+internal interface IPlanBoardHost : ISharedPlanStore
+{
+    DbPlanBoard Board { get; }
+
+    /// <summary>Runs a call, turning the backend's errors into <see cref="AccountantException"/>s that say what to do.</summary>
+    T Guard<T>(Func<T> action);
+
+    SharedPlan? ISharedPlanStore.FindPlan(string name) => Guard(() => Board.FindPlan(name));
+
+    SharedPlan ISharedPlanStore.OpenPlan(string name, string holdout, string settings, IReadOnlyList<PlannedTask> firstStage) =>
+        Guard(() => Board.OpenPlan(name, holdout, settings, firstStage));
+
+    TaskClaim ISharedPlanStore.Claim(SharedPlan plan, string worker, TimeSpan lease) => Guard(() => Board.Claim(plan, worker, lease));
+
+    bool ISharedPlanStore.Renew(SharedPlan plan, int task, string worker, TimeSpan lease) => Guard(() => Board.Renew(plan, task, worker, lease));
+
+    Look? ISharedPlanStore.Complete(SharedPlan plan, int task, string worker, Holdout holdout, Func<NewLook> look,
+        Func<int, IReadOnlyList<FinishedTask>, IReadOnlyList<PlannedTask>>? nextStage) =>
+        Guard(() => Board.Complete(plan, task, worker, holdout, look, nextStage));
+
+    IReadOnlyList<PlanTask> ISharedPlanStore.Tasks(SharedPlan plan) => Guard(() => Board.Tasks(plan));
+}

@@ -8,7 +8,7 @@ namespace Accountant.Ledger;
 /// Completions are therefore serialized, which is what makes a stage's promotion happen exactly once. Plans are created
 /// under a transaction-level advisory lock, so two workers arriving together do not both create the tables or the plan.
 /// </summary>
-public sealed partial class PostgresLedgerStore : ISharedPlanStore
+public sealed partial class PostgresLedgerStore : IPlanBoardHost
 {
     private const string BoardTables = """
         CREATE TABLE IF NOT EXISTS shared_plans (
@@ -38,7 +38,7 @@ public sealed partial class PostgresLedgerStore : ISharedPlanStore
 
     private DbPlanBoard? _board;
 
-    private DbPlanBoard Board => _board ??= new DbPlanBoard(_connection, _clock, new BoardDialect(
+    DbPlanBoard IPlanBoardHost.Board => _board ??= new DbPlanBoard(_connection, _clock, new BoardDialect(
         BoardTables,
         "SELECT CASE WHEN to_regclass('shared_tasks') IS NULL THEN 0 ELSE 1 END;",
         ClaimLock: " FOR UPDATE SKIP LOCKED",
@@ -53,18 +53,5 @@ public sealed partial class PostgresLedgerStore : ISharedPlanStore
         BeginAppend: BeginWrite,
         AppendLooksInTransaction));
 
-    public SharedPlan? FindPlan(string name) => Guarded(() => Board.FindPlan(name));
-
-    public SharedPlan OpenPlan(string name, string holdout, string settings, IReadOnlyList<PlannedTask> firstStage) =>
-        Guarded(() => Board.OpenPlan(name, holdout, settings, firstStage));
-
-    public TaskClaim Claim(SharedPlan plan, string worker, TimeSpan lease) => Guarded(() => Board.Claim(plan, worker, lease));
-
-    public bool Renew(SharedPlan plan, int task, string worker, TimeSpan lease) => Guarded(() => Board.Renew(plan, task, worker, lease));
-
-    public Look? Complete(SharedPlan plan, int task, string worker, Holdout holdout, Func<NewLook> look,
-        Func<int, IReadOnlyList<FinishedTask>, IReadOnlyList<PlannedTask>>? nextStage = null) =>
-        Guarded(() => Board.Complete(plan, task, worker, holdout, look, nextStage));
-
-    public IReadOnlyList<PlanTask> Tasks(SharedPlan plan) => Guarded(() => Board.Tasks(plan));
+    T IPlanBoardHost.Guard<T>(Func<T> action) => Guarded(action);
 }

@@ -5,7 +5,7 @@ namespace Accountant.Ledger;
 /// method is one <c>BEGIN IMMEDIATE</c> transaction, so claims, renewals and completions are serialized by SQLite's write
 /// lock, and a completion's look is appended inside the same transaction that marks its task done.
 /// </summary>
-public sealed partial class SqliteLedgerStore : ISharedPlanStore
+public sealed partial class SqliteLedgerStore : IPlanBoardHost
 {
     private const string BoardTables = """
         CREATE TABLE IF NOT EXISTS shared_plans (
@@ -35,7 +35,7 @@ public sealed partial class SqliteLedgerStore : ISharedPlanStore
 
     private DbPlanBoard? _board;
 
-    private DbPlanBoard Board => _board ??= new DbPlanBoard(_connection, _clock, new BoardDialect(
+    DbPlanBoard IPlanBoardHost.Board => _board ??= new DbPlanBoard(_connection, _clock, new BoardDialect(
         BoardTables,
         "SELECT count(*) FROM sqlite_master WHERE type = 'table' AND name = 'shared_tasks';",
         ClaimLock: "",
@@ -45,18 +45,5 @@ public sealed partial class SqliteLedgerStore : ISharedPlanStore
         BeginAppend: () => _connection.BeginTransaction(deferred: false),
         AppendLooksInTransaction));
 
-    public SharedPlan? FindPlan(string name) => Guarded(() => Board.FindPlan(name));
-
-    public SharedPlan OpenPlan(string name, string holdout, string settings, IReadOnlyList<PlannedTask> firstStage) =>
-        Guarded(() => Board.OpenPlan(name, holdout, settings, firstStage));
-
-    public TaskClaim Claim(SharedPlan plan, string worker, TimeSpan lease) => Guarded(() => Board.Claim(plan, worker, lease));
-
-    public bool Renew(SharedPlan plan, int task, string worker, TimeSpan lease) => Guarded(() => Board.Renew(plan, task, worker, lease));
-
-    public Look? Complete(SharedPlan plan, int task, string worker, Holdout holdout, Func<NewLook> look,
-        Func<int, IReadOnlyList<FinishedTask>, IReadOnlyList<PlannedTask>>? nextStage = null) =>
-        Guarded(() => Board.Complete(plan, task, worker, holdout, look, nextStage));
-
-    public IReadOnlyList<PlanTask> Tasks(SharedPlan plan) => Guarded(() => Board.Tasks(plan));
+    T IPlanBoardHost.Guard<T>(Func<T> action) => Guarded(action);
 }
