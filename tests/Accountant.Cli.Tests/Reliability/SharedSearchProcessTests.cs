@@ -39,6 +39,44 @@ public sealed class SharedSearchProcessTests(ITestOutputHelper output)
         }
     }
 
+    [Fact]
+    public void Wrong_share_arguments_end_in_one_line_with_their_exit_code_and_write_nothing()
+    {
+        using var cli = new CliHarness();
+        var data = Path.Combine(cli.Folder, "bakery.csv");
+        Assert.Equal(0, cli.Run("demo", "--export", data, "--export-rows", "100", "--no-ledger").Exit);
+        string[] Search(params string[] extra) =>
+            ["search", data, "--label", "sold_out", "--id-column", "day", "--looks", "2", "--quiet", .. extra.Contains("--share") ? extra : [.. extra, "--share", "team"]];
+
+        // No ledger yet: a shared worker does not create one (workers starting together would race to), and says how to.
+        var missing = cli.Run(Search());
+        Assert.Equal((ExitCodes.LedgerUnusable, false), (missing.Exit, File.Exists(cli.Ledger)));
+        Assert.Contains("accountant init", missing.Err);
+        Assert.Equal(0, cli.Run("init").Exit);
+        string? head;
+        using (var book = Bookkeeper.Open(cli.Ledger)) head = book.Store.ChainHead();
+        foreach (var (extra, exit, says) in new (string[], int, string)[]
+        {
+            (["--lease", "soon"], ExitCodes.BadArguments, "--lease takes a positive duration"),
+            (["--lease", "0s"], ExitCodes.BadArguments, "--lease takes a positive duration"),
+            (["--lease", "500ms"], ExitCodes.BadArguments, "--lease must be at least 1 s"),
+            (["--strategy", "refine"], ExitCodes.BadArguments, "refine chooses each configuration from every earlier look"),
+            (["--share", "two\tlines"], ExitCodes.BadArguments, "--share needs a short printable name"),
+        })
+        {
+            var result = cli.Run(Search(extra));
+            Assert.True(result.Exit == exit, $"{string.Join(' ', extra)}: exit {result.Exit}, {result.Err}");
+            var lines = result.Err.Split('\n', StringSplitOptions.RemoveEmptyEntries).Where(l => !l.Contains("task inferred", StringComparison.Ordinal)).ToList();
+            Assert.Single(lines);
+            Assert.StartsWith("accountant: ", lines[0]);
+            Assert.Contains(says, lines[0]);
+            using var book = Bookkeeper.Open(cli.Ledger);
+            Assert.Equal(head, book.Store.ChainHead());
+            Assert.Empty(book.Store.Holdouts());
+            Assert.Null(book.SharedPlans.FindPlan("team"));
+        }
+    }
+
     private void Work(CliHarness cli, string ledger, int workers, int looks)
     {
         var data = Path.Combine(cli.Folder, "bakery.csv");
