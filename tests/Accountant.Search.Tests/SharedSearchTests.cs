@@ -109,6 +109,26 @@ public sealed class SharedSearchTests(ITestOutputHelper output) : IDisposable
         Assert.True(reader.Verify().Valid);
     }
 
+    [Theory]
+    [InlineData("random", 7)]
+    [InlineData("grid", 7)]
+    public void A_fixed_plan_holds_the_configurations_a_search_of_ones_own_would_try_in_its_order(string strategy, int looks)
+    {
+        var data = BakeryFile.Write(_folder, 120);
+        Bookkeeper.Create(Ledger).Dispose();
+        using var book = Bookkeeper.Open(Ledger);
+        using var stop = new CancellationTokenSource();
+        stop.Cancel(); // the plan is written on arrival; no configuration is claimed or trained
+        new TabularSearch(book, Ledger).Run(Options(data) with { Strategy = strategy, Looks = looks }, cancel: stop.Token);
+        var space = SpaceFile.Read(QuickSpace(), TaskKind.Binary);
+        ISearchStrategy own = strategy == "grid" ? new GridStrategy(space, looks) : new RandomStrategy(space, looks, 4);
+        var count = strategy == "grid" ? Math.Min(looks, ((GridStrategy)own).Count) : looks;
+        var tasks = book.SharedPlans.Tasks(book.SharedPlans.FindPlan("team")!);
+        Assert.Equal(Enumerable.Range(0, count).Select(i => own.Next(i, []).Configuration.ToJson()), tasks.Select(t => t.Configuration));
+        Assert.All(tasks, t => Assert.Equal((TaskState.Pending, 1.0, false, (string?)null), (t.State, t.Fraction, t.Adaptive, t.Stage)));
+        Assert.Empty(book.Store.Looks(book.Holdout("bakery-validation")));
+    }
+
     [Fact]
     public void A_worker_whose_settings_differ_from_the_plan_is_refused_naming_the_difference_and_writes_nothing()
     {
