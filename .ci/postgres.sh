@@ -18,8 +18,16 @@ case "$action" in
     [ "$(id -u)" = 0 ] && chown postgres: "$dir"
     # A free port on loopback, chosen by the kernel.
     port=$(python3 -c 'import socket; s=socket.socket(); s.bind(("127.0.0.1",0)); print(s.getsockname()[1])' 2>/dev/null || echo 54329)
-    as_owner "$bin/initdb" -D "$dir/data" -U accountant --auth=trust -E UTF8 --no-locale >"$dir/initdb.log" 2>&1 \
+    # With ACCOUNTANT_PG_PASSWORD set, logins need that password (SCRAM-SHA-256); otherwise loopback is trusted.
+    auth=(--auth=trust)
+    if [ -n "${ACCOUNTANT_PG_PASSWORD:-}" ]; then
+      printf '%s\n' "$ACCOUNTANT_PG_PASSWORD" >"$dir/pwfile"
+      [ "$(id -u)" = 0 ] && chown postgres: "$dir/pwfile"
+      auth=(--auth=scram-sha-256 --pwfile="$dir/pwfile")
+    fi
+    as_owner "$bin/initdb" -D "$dir/data" -U accountant "${auth[@]}" -E UTF8 --no-locale >"$dir/initdb.log" 2>&1 \
       || { cat "$dir/initdb.log" >&2; exit 1; }
+    rm -f "$dir/pwfile"
     as_owner "$bin/pg_ctl" -D "$dir/data" -l "$dir/server.log" -w -t 60 \
       -o "-c listen_addresses=127.0.0.1 -p $port -k $dir -c fsync=on -c max_connections=200" start >/dev/null \
       || { cat "$dir/server.log" >&2; exit 1; }

@@ -53,6 +53,17 @@ echo "RATIO ingest, score-only looks, library / raw: $(value ingest_score_only_r
 echo "RATIO ingest, looks with a 100,000-example bitset, library / raw: $(value ingest_bitset_ratio "$WORK/ingest.txt")  (target >= 0.7)"
 
 echo
+echo "== PostgreSQL ledger over loopback: looks per second through the library against raw Npgsql writes of the same rows"
+ls /usr/lib/postgresql/*/bin/initdb >/dev/null 2>&1 || { apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq postgresql >/dev/null; }
+chmod 755 "$WORK"
+PG=$(bash .ci/postgres.sh start "$WORK/pg")
+$BENCH ingest-postgres "$PG" | tee "$WORK/pg.txt"
+bash .ci/postgres.sh stop "$WORK/pg"
+echo "RATIO PostgreSQL ingest, 20,000 score-only looks in one batch, library / raw prepared INSERTs: $(value pg_score_only_ratio_vs_insert "$WORK/pg.txt")  (library / raw binary COPY: $(value pg_score_only_ratio_vs_copy "$WORK/pg.txt"))"
+echo "RATIO PostgreSQL ingest, 1,000 looks with a 100,000-example bitset, library / raw prepared INSERTs: $(value pg_bitset_ratio_vs_insert "$WORK/pg.txt")  (library / raw binary COPY: $(value pg_bitset_ratio_vs_copy "$WORK/pg.txt"))"
+echo "RATIO PostgreSQL, 500 single looks, one transaction each (as a worker writes), library / raw: $(value pg_single_ratio_vs_insert "$WORK/pg.txt")"
+
+echo
 echo "== accountant statement on 1,000,000 looks, and record of one look, from separate processes"
 [ -f "$WORK/million.db" ] || $BENCH ledger-scores "$WORK/million.db" 1000000
 $BENCH ledger-bitsets "$WORK/wide.db" 1000 10000 >/dev/null

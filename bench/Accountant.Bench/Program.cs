@@ -18,6 +18,7 @@ return mode switch
     "peak" => Peak(),
     "bootstrap" => Bootstrap(rest),
     "ingest" => Ingest(rest),
+    "ingest-postgres" => PostgresIngest.Run(rest),
     "ledger-scores" => LedgerScores(rest),
     "ledger-bitsets" => LedgerBitsets(rest),
     _ => Usage(),
@@ -25,7 +26,7 @@ return mode switch
 
 static int Usage()
 {
-    Console.Error.WriteLine("usage: Accountant.Bench peak | bootstrap K N B SEED MATRIX_FILE | ingest DIR | ledger-scores PATH LOOKS | ledger-bitsets PATH K N");
+    Console.Error.WriteLine("usage: Accountant.Bench peak | bootstrap K N B SEED MATRIX_FILE | ingest DIR | ingest-postgres CONNECTION_STRING | ledger-scores PATH LOOKS | ledger-bitsets PATH K N");
     return 2;
 }
 

@@ -21,6 +21,7 @@ public static class AccountantCli
             new PlanCommand(env),
             new VoidCommand(env),
             new VerifyCommand(env),
+            new CopyCommand(env),
             new SearchCommand(env),
             new UnsealCommand(env),
             new PlotCommand(env),

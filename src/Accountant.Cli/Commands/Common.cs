@@ -14,7 +14,7 @@ internal static class Common
     /// <summary>The global --ledger option, inherited by every verb.</summary>
     public static Option<string?> LedgerOption { get; } = new("--ledger")
     {
-        Description = $"The ledger file (else ${LedgerVariable}, else ./{DefaultLedger}).",
+        Description = $"The ledger: a file (SQLite), or a PostgreSQL address (postgresql://USER@HOST/DATABASE or Host=...;Database=...) shared by a team (else ${LedgerVariable}, else ./{DefaultLedger}).",
         Recursive = true,
     };
 

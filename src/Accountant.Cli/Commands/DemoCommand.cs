@@ -71,7 +71,7 @@ internal sealed class DemoCommand : Command
                 var how = options.Strategy == "refine" ? "Refining search (adaptive)" : "Random search";
                 var told = options.Guard is { } shown ? $", scores released through {shown}" : "";
                 env.Output.WriteLine($"{how} over {options.Looks} configurations of {string.Join(", ", BinaryTrainers.DefaultSpace.Take(Math.Min(options.Looks, BinaryTrainers.DefaultSpace.Count)).Select(s => s.Trainer))}{told}");
-                env.Output.WriteLine($"trained on {Text.Count(options.TrainingRows)} days, every look scored on the same {Text.Count(options.ValidationRows)} validation days; ledger {path}");
+                env.Output.WriteLine($"trained on {Text.Count(options.TrainingRows)} days, every look scored on the same {Text.Count(options.ValidationRows)} validation days; ledger {book.Store.Location}");
                 env.Output.WriteLine();
                 env.Output.Flush();
             }
@@ -88,7 +88,7 @@ internal sealed class DemoCommand : Command
                 env.Error.WriteLine($"accountant: interrupted after {outcome.Search.Looks.Count} look(s); every finished look was kept and the statement below covers them.");
             }
 
-            env.Output.Write(Render(outcome, text, path));
+            env.Output.Write(Render(outcome, text, book.Store.Location));
             return outcome.Search.Cancelled ? ExitCodes.Interrupted : ExitCodes.Success;
         }));
     }

@@ -326,8 +326,22 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
     /// <summary>The work of <see cref="AppendLooks"/> inside a write transaction (holding the chain lock) the caller began and will commit.</summary>
     private List<Look> AppendLooksInTransaction(Holdout holdout, IReadOnlyList<NewLook> looks)
     {
-        var number = Convert.ToInt32(ScalarWith("SELECT COALESCE(MAX(number), 0) FROM looks WHERE holdout_id = @id;", ("id", holdout.Key)), CultureInfo.InvariantCulture);
-        var (sequence, previous) = Tail();
+        // The holdout's last look number and the chain's tail in one round trip.
+        int number;
+        long sequence;
+        byte[] previous;
+        using (var state = Command("""
+            SELECT (SELECT COALESCE(MAX(number), 0) FROM looks WHERE holdout_id = @id), e.seq, e.hash
+            FROM (SELECT 1) AS one LEFT JOIN (SELECT seq, hash FROM entries ORDER BY seq DESC LIMIT 1) AS e ON true;
+            """))
+        {
+            state.Parameters.AddWithValue("id", holdout.Key);
+            using var reader = state.ExecuteReader();
+            reader.Read();
+            number = reader.GetInt32(0);
+            (sequence, previous) = reader.IsDBNull(1) ? (1L, Chain.Genesis) : (reader.GetInt64(1) + 1, (byte[])reader.GetValue(2));
+        }
+
         var recorded = Chain.Timestamp(_clock.GetUtcNow());
         var recordedAt = Chain.ParseTimestamp(recorded);
 
@@ -361,11 +375,15 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
         }
         else
         {
+            // A few looks (a worker recording one): every insert in one batch, one round trip.
+            using var batch = new NpgsqlBatch(_connection);
             for (var i = 0; i < looks.Count; i++)
             {
-                InsertEntry(firstSequence + i, "look", links[i].Previous, links[i].Hash);
-                InsertLook(holdout.Key, firstSequence + i, firstNumber + i, looks[i], digests[i], recorded);
+                batch.BatchCommands.Add(EntryInsert(firstSequence + i, "look", links[i].Previous, links[i].Hash));
+                batch.BatchCommands.Add(LookInsert(holdout.Key, firstSequence + i, firstNumber + i, looks[i], digests[i], recorded));
             }
+
+            batch.ExecuteNonQuery();
         }
 
         return looks.Select((look, i) => new Look(firstSequence + i, firstNumber + i, look.Configuration, digests[i], look.Score, look.LossEncoding,
@@ -431,9 +449,9 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
 
     private const string LookInsertColumns = "seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at, guard, released, holdout_answered, train_score";
 
-    private void InsertLook(long holdoutKey, long sequence, int number, NewLook look, string digest, string recorded)
+    private static NpgsqlBatchCommand LookInsert(long holdoutKey, long sequence, int number, NewLook look, string digest, string recorded)
     {
-        using var insert = Command($"""
+        var insert = new NpgsqlBatchCommand($"""
             INSERT INTO looks ({LookInsertColumns})
             VALUES (@seq, @holdout, @number, @configuration, @digest, @score, @adaptive, @encoding, @losses, @search, @stage, @seconds, @recorded, @guard, @released, @answered, @train);
             """);
@@ -455,7 +473,7 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
         p.Add(Nullable("released", look.Release?.Value, NpgsqlDbType.Double));
         p.Add(Nullable("answered", look.Release is { } r ? (r.HoldoutAnswered ? 1 : 0) : null, NpgsqlDbType.Integer));
         p.Add(Nullable("train", look.Release?.TrainScore, NpgsqlDbType.Double));
-        insert.ExecuteNonQuery();
+        return insert;
     }
 
     private static NpgsqlParameter Nullable(string name, object? value, NpgsqlDbType type) => new(name, type) { Value = value ?? DBNull.Value };
@@ -660,12 +678,18 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
 
     private void InsertEntry(long sequence, string kind, byte[] previous, byte[] hash)
     {
-        using var command = Command("INSERT INTO entries (seq, kind, prev_hash, hash) VALUES (@seq, @kind, @prev, @hash);");
+        using var batch = new NpgsqlBatch(_connection) { BatchCommands = { EntryInsert(sequence, kind, previous, hash) } };
+        batch.ExecuteNonQuery();
+    }
+
+    private static NpgsqlBatchCommand EntryInsert(long sequence, string kind, byte[] previous, byte[] hash)
+    {
+        var command = new NpgsqlBatchCommand("INSERT INTO entries (seq, kind, prev_hash, hash) VALUES (@seq, @kind, @prev, @hash);");
         command.Parameters.Add(new NpgsqlParameter<long>("seq", sequence));
         command.Parameters.Add(new NpgsqlParameter<string>("kind", kind));
         command.Parameters.Add(new NpgsqlParameter<byte[]>("prev", previous));
         command.Parameters.Add(new NpgsqlParameter<byte[]>("hash", hash));
-        command.ExecuteNonQuery();
+        return command;
     }
 
     private NpgsqlCommand Command(string sql) => new(sql, _connection);

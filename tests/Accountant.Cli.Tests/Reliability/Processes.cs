@@ -20,13 +20,14 @@ internal static class Processes
         private readonly StringBuilder _out = new();
         private readonly StringBuilder _err = new();
 
-        public Running(string dll, IEnumerable<string> args)
+        public Running(string dll, IEnumerable<string> args, IReadOnlyDictionary<string, string?>? environment = null)
         {
             var info = new ProcessStartInfo("dotnet") { RedirectStandardOutput = true, RedirectStandardError = true, UseShellExecute = false };
             info.ArgumentList.Add(dll);
             foreach (var a in args) info.ArgumentList.Add(a);
             info.Environment["DOTNET_CLI_TELEMETRY_OPTOUT"] = "1";
             info.Environment["DOTNET_NOLOGO"] = "1";
+            foreach (var (name, value) in environment ?? new Dictionary<string, string?>()) info.Environment[name] = value;
             Process = new Process { StartInfo = info };
             Process.OutputDataReceived += (_, e) => { if (e.Data is not null) lock (_out) _out.AppendLine(e.Data); };
             Process.ErrorDataReceived += (_, e) => { if (e.Data is not null) lock (_err) _err.AppendLine(e.Data); };
@@ -73,6 +74,13 @@ internal static class Processes
     public static Finished Run(string dll, params string[] args)
     {
         using var running = new Running(dll, args);
+        return running.Wait();
+    }
+
+    /// <summary>Runs with these environment variables set (or, when null, removed) for the child alone.</summary>
+    public static Finished RunWith(IReadOnlyDictionary<string, string?> environment, string dll, params string[] args)
+    {
+        using var running = new Running(dll, args, environment);
         return running.Wait();
     }
 }

@@ -48,23 +48,43 @@ public static class PostgresServer
     private static string Start()
     {
         if (Environment.GetEnvironmentVariable(Variable) is { Length: > 0 } given) return given;
+        var cluster = StartThrowaway();
+        AppDomain.CurrentDomain.ProcessExit += (_, _) => cluster.Dispose();
+        return cluster.ConnectionString;
+    }
+
+    /// <summary>A throwaway cluster of its own (with <paramref name="password"/>, logins need it); disposing stops and removes it.</summary>
+    public static Cluster StartThrowaway(string? password = null)
+    {
         var script = FindScript() ?? throw new InvalidOperationException($"no PostgreSQL for the tests: set {Variable} to a connection string, or run them from a checkout (.ci/postgres.sh starts a throwaway server).");
         var folder = Path.Combine(Path.GetTempPath(), "accountant-pg-" + Guid.NewGuid().ToString("N")[..12]);
         Directory.CreateDirectory(folder);
         if (!OperatingSystem.IsWindows()) File.SetUnixFileMode(folder, UnixFileMode.UserRead | UnixFileMode.UserWrite | UnixFileMode.UserExecute | UnixFileMode.GroupRead | UnixFileMode.GroupExecute | UnixFileMode.OtherRead | UnixFileMode.OtherExecute);
         var data = Path.Combine(folder, "pg");
-        var (code, output, error) = Run(script, "start", data);
+        var (code, output, error) = Run(script, "start", data, password);
         if (code != 0)
         {
             throw new InvalidOperationException($"could not start a throwaway PostgreSQL ({error.Trim()}); install Debian's postgresql package or set {Variable}.");
         }
 
-        AppDomain.CurrentDomain.ProcessExit += (_, _) =>
+        return new Cluster(output.Trim(), () =>
         {
-            Run(script, "stop", data); // stops the server and removes its folder
+            Run(script, "stop", data, null); // stops the server and removes its folder
             try { Directory.Delete(folder); } catch (IOException) { } catch (UnauthorizedAccessException) { }
-        };
-        return output.Trim();
+        });
+    }
+
+    /// <summary>A running throwaway cluster: its connection string (without any password) and how to stop it.</summary>
+    public sealed class Cluster(string connectionString, Action stop) : IDisposable
+    {
+        private int _stopped;
+
+        public string ConnectionString { get; } = connectionString;
+
+        public void Dispose()
+        {
+            if (Interlocked.Exchange(ref _stopped, 1) == 0) stop();
+        }
     }
 
     private static string? FindScript()
@@ -78,9 +98,10 @@ public static class PostgresServer
         return null;
     }
 
-    private static (int Code, string Output, string Error) Run(string script, string action, string folder)
+    private static (int Code, string Output, string Error) Run(string script, string action, string folder, string? password)
     {
         var start = new ProcessStartInfo("bash") { RedirectStandardOutput = true, RedirectStandardError = true };
+        if (password is not null) start.Environment["ACCOUNTANT_PG_PASSWORD"] = password;
         foreach (var argument in new[] { script, action, folder }) start.ArgumentList.Add(argument);
         using var process = Process.Start(start)!;
         var output = process.StandardOutput.ReadToEndAsync();
