@@ -100,3 +100,34 @@ public sealed class GridStrategy : ISearchStrategy
 
     public (TrainerConfiguration, bool) Next(int index, IReadOnlyList<ToldLook> history) => (_plan[index], false);
 }
+
+/// <summary>
+/// The schedule of successive halving (Jamieson &amp; Talwalkar 2016, AISTATS) with η = 3 over the share of training rows, used
+/// by a search of one's own and by a shared one alike: rung i trains ⌊K/3^i⌋ (at least one) configurations on 3^(i − R)
+/// of the rows, R = ⌊log₃ K⌋, and promotes the best third by the values told.
+/// </summary>
+internal static class Halving
+{
+    public const int Eta = 3;
+
+    /// <summary>R, the index of the last rung, for K configurations in the first.</summary>
+    public static int Rungs(int looks) => (int)Math.Floor(Math.Log(looks) / Math.Log(Eta) + 1e-9);
+
+    /// <summary>How many configurations each rung trains.</summary>
+    public static IEnumerable<int> Sizes(int looks) => Enumerable.Range(0, Rungs(looks) + 1).Select(i => Math.Max(1, looks / (int)Math.Pow(Eta, i)));
+
+    public static double Fraction(int rung, int rungs) => Math.Pow(Eta, rung - rungs);
+
+    /// <summary>The stage label recorded with a rung's looks.</summary>
+    public static string Stage(double fraction) => fraction.ToString("0.####", System.Globalization.CultureInfo.InvariantCulture);
+
+    /// <summary>The best third (at least one) by the values told, lower first unless higher is better; refused values last; ties keep their order.</summary>
+    public static List<T> Keep<T>(IReadOnlyList<(T Item, double? Told)> results, bool higherIsBetter)
+    {
+        var keep = Math.Max(1, results.Count / Eta);
+        var ordered = higherIsBetter
+            ? results.OrderByDescending(r => r.Told ?? double.NegativeInfinity)
+            : results.OrderBy(r => r.Told ?? double.PositiveInfinity);
+        return ordered.Take(keep).Select(r => r.Item).ToList();
+    }
+}

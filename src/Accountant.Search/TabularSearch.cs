@@ -34,27 +34,49 @@ public sealed record TabularSearchOptions
     /// <summary>Where the selected model goes; by default beside the ledger, named after the holdout.</summary>
     public string? ModelPath { get; init; }
     public StatementOptions Statement { get; init; } = new();
+    /// <summary>The name of a shared plan to work through with other workers (see <see cref="TabularSearch"/>'s shared part); null for a search of one's own.</summary>
+    public string? Share { get; init; }
+    /// <summary>How long a shared worker's claim lasts unless renewed; the worker renews it every third of this while it trains.</summary>
+    public TimeSpan Lease { get; init; } = TimeSpan.FromMinutes(2);
 }
 
 /// <summary>What a search did, and where it left the selected model.</summary>
 public sealed record TabularSearchOutcome(
     Statement Statement, SearchOutcome Search, TaskKind Task, bool TaskInferred, string ModelPath, string RecordPath,
-    int TrainingRows, int ValidationRows, int TestRows);
+    int TrainingRows, int ValidationRows, int TestRows)
+{
+    /// <summary>Whether this process saved the selected model and its record (a shared worker saves them only when it trained the selected look).</summary>
+    public bool ModelSaved { get; init; }
+
+    /// <summary>This worker's name in a shared search; null otherwise.</summary>
+    public string? SharedWorker { get; init; }
+
+    /// <summary>In a shared search, the worker whose look was selected (it saves the selected model); null otherwise.</summary>
+    public string? SelectedBy { get; init; }
+}
 
 /// <summary>
 /// A hyperparameter search on the user's own CSV: split (or separate files), featurize on the training rows only, register
 /// the validation rows as the holdout, try configurations by a strategy, record every look (every stage of halving too),
 /// and keep the selected model with a record of how to rebuild its sealed test set.
 /// </summary>
-public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
+public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
 {
     private readonly MLContext _ml = new(seed: 1);
 
     public static string DefaultHoldoutName(string dataPath) => Path.GetFileNameWithoutExtension(dataPath) + "-validation";
 
-    /// <summary>The record a search leaves beside the ledger, and unseal reads.</summary>
-    public static string RecordPathFor(string ledgerPath, string holdout) =>
-        Path.Combine(Path.GetDirectoryName(Path.GetFullPath(ledgerPath)) ?? ".", Safe(holdout) + ".search.json");
+    /// <summary>
+    /// Where a search leaves its record and selected model: beside a ledger file, or the current directory when the ledger
+    /// is not a file of this machine (a server database).
+    /// </summary>
+    public static string FolderFor(ILedgerStore store) =>
+        store is SqliteLedgerStore ? Path.GetDirectoryName(Path.GetFullPath(store.Location)) ?? "." : Directory.GetCurrentDirectory();
+
+    /// <summary>The record a search leaves (see <see cref="FolderFor"/>), and unseal reads.</summary>
+    public static string RecordPathFor(ILedgerStore store, string holdout) => Path.Combine(FolderFor(store), Safe(holdout) + ".search.json");
+
+    private string Folder => book.Store is SqliteLedgerStore ? Path.GetDirectoryName(Path.GetFullPath(ledgerPath)) ?? "." : FolderFor(book.Store);
 
     private static string Safe(string name) => string.Concat(name.Select(c => char.IsLetterOrDigit(c) || c is '-' or '_' or '.' ? c : '_'));
 
@@ -65,6 +87,7 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
         var task = prepared.Task;
         var space = options.SpacePath is { } spacePath ? SpaceFile.Read(spacePath, task) : TrainerCatalog.DefaultSpace(task);
         var name = options.HoldoutName ?? DefaultHoldoutName(options.DataPath);
+        if (options.Share is not null) return RunShared(options, prepared, space, name, progress, note, cancel);
         var holdout = book.EnsureHoldout(name, prepared.ValidationExamples(), prepared.Metric, prepared.LossRange);
         var views = new Views(_ml, prepared);
         var runner = new Runner(_ml, book, holdout, prepared, views, options.Guard, $"search-{options.Strategy}-seed{options.Seed}");
@@ -77,11 +100,20 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
             _ => throw AccountantException.BadArguments($"unknown strategy '{options.Strategy}'; use random, grid, refine or halving."),
         };
 
+        return Finish(options, prepared, views, runner, holdout, outcome);
+    }
+
+    /// <summary>The statement, and the selected model with its record when this process trained the selected look.</summary>
+    private TabularSearchOutcome Finish(TabularSearchOptions options, Prepared prepared, Views views, Runner runner, Holdout holdout, SearchOutcome outcome)
+    {
+        var task = prepared.Task;
         var statement = book.Statement(holdout.Name, options.Statement);
-        var modelPath = options.ModelPath ?? Path.Combine(Path.GetDirectoryName(Path.GetFullPath(ledgerPath)) ?? ".", Safe(holdout.Name) + ".model.zip");
-        var recordPath = RecordPathFor(ledgerPath, holdout.Name);
+        var modelPath = options.ModelPath ?? Path.Combine(Folder, Safe(holdout.Name) + ".model.zip");
+        var recordPath = Path.Combine(Folder, Safe(holdout.Name) + ".search.json");
+        var saved = false;
         if (statement.Best is { } best && runner.Models.TryGetValue(best.Number, out var model))
         {
+            saved = true;
             _ml.Model.Save(model, views.Training.Schema, modelPath);
             var record = new SearchRecord
             {
@@ -96,7 +128,7 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
         }
 
         return new TabularSearchOutcome(statement, outcome, task, options.Task is null, modelPath, recordPath,
-            prepared.TrainingRows.Count, prepared.ValidationRows.Count, prepared.TestRows.Count);
+            prepared.TrainingRows.Count, prepared.ValidationRows.Count, prepared.TestRows.Count) { ModelSaved = saved };
     }
 
     /// <summary>Scores the selected model on the sealed test rows, once, and returns the test score and the number of test examples.</summary>
@@ -318,6 +350,8 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
     private sealed class Runner(MLContext ml, Bookkeeper book, Holdout holdout, Prepared prepared, Views views, GuardSpec? guard, string search)
     {
         public Dictionary<int, ITransformer> Models { get; } = [];
+
+        public Bookkeeper Book => book;
         private readonly Stopwatch _clock = Stopwatch.StartNew();
         private readonly List<ScoredConfiguration> _looks = [];
         private ScoredConfiguration? _best;
@@ -325,8 +359,11 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
 
         private bool Better(double a, double b) => holdout.Metric.HigherIsBetter() ? a > b : a < b;
 
-        /// <summary>Trains on the first <paramref name="fraction"/> of the (shuffled) training rows, scores the holdout, records one look.</summary>
-        private (Look Look, double? Told) Evaluate(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage)
+        /// <summary>A configuration trained and its holdout predictions made, not yet recorded.</summary>
+        public sealed record Trained(TrainerConfiguration Configuration, ITransformer Model, double Seconds, LookInput Input);
+
+        /// <summary>Trains on the first <paramref name="fraction"/> of the (shuffled) training rows and predicts the holdout; records nothing.</summary>
+        public Trained Train(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage)
         {
             var started = _clock.Elapsed;
             var rows = (long)Math.Max(2, Math.Round(prepared.TrainingRows.Count * fraction));
@@ -335,14 +372,24 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
             var predictions = Predict(ml, prepared, model, views.Validation, prepared.ValidationRows);
             var seconds = (_clock.Elapsed - started).TotalSeconds;
             double? trainScore = guard?.Kind == GuardKind.Thresholdout ? TrainingScore(model, training) : null;
-            var look = book.RecordMany(holdout.Name,
-            [
-                new LookInput
-                {
-                    Configuration = configuration.ToJson(), Predictions = predictions, Search = search, Stage = stage,
-                    Seconds = Math.Round(seconds, 3), Adaptive = adaptive, Guard = guard, TrainScore = trainScore,
-                },
-            ])[0];
+            return new Trained(configuration, model, seconds, new LookInput
+            {
+                Configuration = configuration.ToJson(), Predictions = predictions, Search = search, Stage = stage,
+                Seconds = Math.Round(seconds, 3), Adaptive = adaptive, Guard = guard, TrainScore = trainScore,
+            });
+        }
+
+        /// <summary>Trains, scores the holdout, records one look.</summary>
+        private (Look Look, double? Told) Evaluate(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage)
+        {
+            var trained = Train(configuration, adaptive, fraction, stage);
+            return Keep(trained, book.RecordMany(holdout.Name, [trained.Input])[0]);
+        }
+
+        /// <summary>Notes a recorded look of this process: its model is kept while it is this process's best.</summary>
+        public (Look Look, double? Told) Keep(Trained trained, Look look)
+        {
+            var (configuration, model, seconds) = (trained.Configuration, trained.Model, trained.Seconds);
             var scored = new ScoredConfiguration(look, configuration, seconds);
             _looks.Add(scored);
             if (_best is null || Better(look.Score, _best.Look.Score))
@@ -364,10 +411,10 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
             return Losses.Compute(holdout with { Size = examples.Count }, examples, Predict(ml, prepared, model, training, rows)).Score;
         }
 
-        private void Report(IProgress<SearchProgress>? progress, int done, int total, string current) =>
+        public void Report(IProgress<SearchProgress>? progress, int done, int total, string current) =>
             progress?.Report(new SearchProgress(done, total, _best?.Look.Score, _clock.Elapsed, current));
 
-        private SearchOutcome Outcome(bool cancelled) => new(_looks, _best, null, cancelled);
+        public SearchOutcome Outcome(bool cancelled) => new(_looks, _best, null, cancelled);
 
         public SearchOutcome Plain(ISearchStrategy strategy, int looks, IProgress<SearchProgress>? progress, CancellationToken cancel)
         {
@@ -390,15 +437,14 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
         /// </summary>
         public SearchOutcome Halving(IReadOnlyList<TrainerSpace> space, int looks, int seed, IProgress<SearchProgress>? progress, CancellationToken cancel)
         {
-            const int eta = 3;
-            var rungs = (int)Math.Floor(Math.Log(looks) / Math.Log(eta) + 1e-9);
-            var total = Enumerable.Range(0, rungs + 1).Sum(i => Math.Max(1, looks / (int)Math.Pow(eta, i)));
+            var rungs = Search.Halving.Rungs(looks);
+            var total = Search.Halving.Sizes(looks).Sum();
             var current = BinaryTrainers.RandomConfigurations(space, looks, seed);
             var done = 0;
             for (var rung = 0; rung <= rungs && current.Count > 0; rung++)
             {
-                var fraction = Math.Pow(eta, rung - rungs);
-                var stage = fraction.ToString("0.####", CultureInfo.InvariantCulture);
+                var fraction = Search.Halving.Fraction(rung, rungs);
+                var stage = Search.Halving.Stage(fraction);
                 var results = new List<(TrainerConfiguration Configuration, double? Told)>();
                 foreach (var configuration in current)
                 {
@@ -409,11 +455,7 @@ public sealed class TabularSearch(Bookkeeper book, string ledgerPath)
                     done++;
                 }
 
-                var keep = Math.Max(1, current.Count / eta);
-                var ordered = holdout.Metric.HigherIsBetter()
-                    ? results.OrderByDescending(r => r.Told ?? double.NegativeInfinity)
-                    : results.OrderBy(r => r.Told ?? double.PositiveInfinity);
-                current = rung == rungs ? [] : ordered.Take(keep).Select(r => r.Configuration).ToList();
+                current = rung == rungs ? [] : Search.Halving.Keep(results, holdout.Metric.HigherIsBetter());
             }
 
             Report(progress, total, total, "done");

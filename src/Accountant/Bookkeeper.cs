@@ -55,7 +55,7 @@ public sealed record LookInput
 /// var statement = book.Statement("validation");
 /// </code>
 /// </example>
-public sealed class Bookkeeper : IDisposable
+public sealed partial class Bookkeeper : IDisposable
 {
     public const int MaxNameLength = 200;
 
@@ -156,9 +156,17 @@ public sealed class Bookkeeper : IDisposable
     /// </summary>
     public Holdout EnsureHoldout(string name, IReadOnlyList<HoldoutExample> examples, Metric metric = Metric.Error, LossRange? lossRange = null)
     {
-        if (Store.FindHoldout(name) is not { } existing)
+        var existing = Store.FindHoldout(name);
+        if (existing is null)
         {
-            return RegisterHoldout(name, examples, metric, lossRange);
+            try
+            {
+                return RegisterHoldout(name, examples, metric, lossRange);
+            }
+            catch (AccountantException) when ((existing = Store.FindHoldout(name)) is not null)
+            {
+                // Another process (a worker of the same shared search) registered it meanwhile: compare with that one.
+            }
         }
 
         var sorted = examples.Select(e => new HoldoutExample(e.Id.Trim(), Fingerprint.CanonicalLabel(e.Label)))

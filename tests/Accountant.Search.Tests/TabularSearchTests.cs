@@ -20,20 +20,7 @@ public sealed class TabularSearchTests : IDisposable
 
     private string Ledger => Path.Combine(_folder, "ledger.db");
 
-    /// <summary>The invented bakery scenario as CSV (data made by code), sorted by the label as real files often are.</summary>
-    private string BakeryCsv(int rows, int seed = 3, string name = "bakery.csv")
-    {
-        var days = BakeryScenario.Generate(rows, seed).OrderBy(d => d.Label).ToList();
-        var text = new StringBuilder("day,weekday,temperature,rain,event,loaves,price,hours,sold_out\n");
-        foreach (var d in days)
-        {
-            text.Append(CultureInfo.InvariantCulture, $"{d.Id},{d.Weekday},{d.Temperature},{d.Rain},{d.StreetEvent},{d.Loaves},{d.Price},{d.HoursOpen},{(d.Label ? "yes" : "no")}\n");
-        }
-
-        var path = Path.Combine(_folder, name);
-        File.WriteAllText(path, text.ToString());
-        return path;
-    }
+    private string BakeryCsv(int rows, int seed = 3, string name = "bakery.csv") => BakeryFile.Write(_folder, rows, seed, name);
 
     private TabularSearchOutcome Search(TabularSearchOptions options)
     {
@@ -90,7 +77,7 @@ public sealed class TabularSearchTests : IDisposable
         Assert.Equal(5, looks.Count);
         Assert.All(looks, l => Assert.True(l.HasLosses && l.Seconds is not null && !l.Adaptive));
 
-        var record = SearchRecord.Read(TabularSearch.RecordPathFor(Ledger, holdout.Name));
+        var record = SearchRecord.Read(TabularSearch.RecordPathFor(book.Store, holdout.Name));
         var search = new TabularSearch(book, Ledger);
         var first = search.ScoreTest(record);
         book.RecordOpening(holdout.Name, record.Look, first.Rows, first.Fingerprint, first.Score);

@@ -33,12 +33,14 @@ internal sealed class SearchCommand : Command
         var modelOut = new Option<string?>("--model-out") { Description = "Where to save the selected model (ML.NET zip)." };
         var plot = new Option<string?>("--plot") { Description = "Also write the search's plot (.png or .svg)." };
         var quiet = new Option<bool>("--quiet") { Description = "No progress bar." };
+        var share = new Option<string?>("--share") { Description = "Work through one search plan, stored in the ledger, with every other worker given the same NAME and settings (random, grid or halving); the ledger must exist (accountant init)." };
+        var lease = new Option<string>("--lease") { Description = "With --share: how long a claimed configuration stays this worker's unless renewed (renewed while it trains), e.g. 90s, 5m, 1500ms.", DefaultValueFactory = _ => "2m" };
         var confidence = Common.Confidence();
         var tolerance = Common.Tolerance(0.02);
         var twoSided = Common.TwoSided();
         var format = Common.Format("table", "json", "markdown");
         Arguments.Add(data);
-        foreach (var option in new Option[] { label, task, ignore, idColumn, seed, validationFraction, testFraction, validation, test, space, printSpace, strategy, looks, guard, name, modelOut, plot, quiet, confidence, tolerance, twoSided, format })
+        foreach (var option in new Option[] { label, task, ignore, idColumn, seed, validationFraction, testFraction, validation, test, space, printSpace, strategy, looks, guard, name, modelOut, plot, quiet, share, lease, confidence, tolerance, twoSided, format })
         {
             Options.Add(option);
         }
@@ -62,11 +64,13 @@ internal sealed class SearchCommand : Command
                 ValidationPath = r.GetValue(validation), TestPath = r.GetValue(test), SpacePath = r.GetValue(space), Strategy = r.GetValue(strategy)!,
                 Looks = r.GetValue(looks), Guard = r.GetValue(guard) is { } g ? Guards.GuardSpec.Parse(g) : null, HoldoutName = r.GetValue(name),
                 ModelPath = r.GetValue(modelOut), Statement = Common.StatementOptions(r, confidence, tolerance, twoSided),
+                Share = r.GetValue(share), Lease = Duration(r.GetValue(lease)!, "--lease"),
             };
             var plotPath = r.GetValue(plot);
             if (plotPath is not null) StatementPlot.CheckPath(plotPath);
             var ledger = Common.LedgerPath(r, env);
-            using var book = Bookkeeper.OpenOrCreate(ledger, env.Clock);
+            // Shared workers open a ledger made beforehand, so that workers starting together do not race to create it.
+            using var book = options.Share is null ? Bookkeeper.OpenOrCreate(ledger, env.Clock) : Bookkeeper.Open(ledger, env.Clock);
             var progress = r.GetValue(quiet) ? null : new ProgressBar(env.Error, env.ErrorIsTerminal, "score");
             TabularSearchOutcome outcome;
             using (CtrlC.Observe())
@@ -88,11 +92,30 @@ internal sealed class SearchCommand : Command
             if (r.GetValue(format) == "table")
             {
                 env.Output.WriteLine();
-                env.Output.WriteLine($"Data         {Text.Count(outcome.TrainingRows)} training, {Text.Count(outcome.ValidationRows)} validation and {Text.Count(outcome.TestRows)} sealed test rows; selected model {outcome.ModelPath}");
+                var model = outcome.SharedWorker is null || outcome.ModelSaved ? $"selected model {outcome.ModelPath}"
+                    : outcome.SelectedBy is { } by ? $"the selected model is saved by worker {by}, which trained it" : "no selected model";
+                env.Output.WriteLine($"Data         {Text.Count(outcome.TrainingRows)} training, {Text.Count(outcome.ValidationRows)} validation and {Text.Count(outcome.TestRows)} sealed test rows; {model}");
                 env.Output.WriteLine($"Next         'accountant unseal {outcome.Statement.Holdout.Name}' scores the selected model on the sealed test set, once.");
             }
 
             return outcome.Search.Cancelled ? ExitCodes.Interrupted : ExitCodes.Success;
         }));
+    }
+
+    /// <summary>A duration written as a number and a unit: 1500ms, 90s, 5m, 1h (seconds when the unit is left out).</summary>
+    internal static TimeSpan Duration(string text, string option)
+    {
+        var t = text.Trim();
+        var (number, scale) = t.EndsWith("ms", StringComparison.Ordinal) ? (t[..^2], 0.001)
+            : t.EndsWith('s') ? (t[..^1], 1.0)
+            : t.EndsWith('m') ? (t[..^1], 60.0)
+            : t.EndsWith('h') ? (t[..^1], 3600.0)
+            : (t, 1.0);
+        if (!double.TryParse(number, System.Globalization.NumberStyles.Float, System.Globalization.CultureInfo.InvariantCulture, out var value) || !double.IsFinite(value) || value <= 0 || value * scale > 86400)
+        {
+            throw AccountantException.BadArguments($"{option} takes a positive duration of at most a day, such as 90s, 5m or 1500ms, not '{text}'.");
+        }
+
+        return TimeSpan.FromSeconds(value * scale);
     }
 }

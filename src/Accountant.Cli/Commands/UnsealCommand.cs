@@ -21,7 +21,7 @@ internal sealed class UnsealCommand : Command
             var ledger = Common.LedgerPath(r, env);
             using var book = Bookkeeper.Open(ledger, env.Clock);
             var holdout = book.Holdout(r.GetValue(name)!);
-            var record = SearchRecord.Read(TabularSearch.RecordPathFor(ledger, holdout.Name));
+            var record = SearchRecord.Read(TabularSearch.RecordPathFor(book.Store, holdout.Name));
             var (score, rows, fingerprint) = new TabularSearch(book, ledger).ScoreTest(record);
             book.RecordOpening(holdout.Name, record.Look, rows, fingerprint, score);
             var statement = book.Statement(holdout.Name, Common.StatementOptions(r, confidence, tolerance, twoSided));

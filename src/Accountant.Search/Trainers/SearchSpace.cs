@@ -115,4 +115,19 @@ public sealed record TrainerConfiguration(string Trainer, IReadOnlyDictionary<st
     }
 
     public override string ToString() => ToJson();
+
+    /// <summary>Reads back what <see cref="ToJson"/> wrote: a "trainer" name and numeric hyperparameters.</summary>
+    public static TrainerConfiguration FromJson(string json)
+    {
+        using var document = System.Text.Json.JsonDocument.Parse(json);
+        var values = new Dictionary<string, double>(StringComparer.Ordinal);
+        string? trainer = null;
+        foreach (var property in document.RootElement.EnumerateObject())
+        {
+            if (property.Name == "trainer") trainer = property.Value.GetString();
+            else values[property.Name] = property.Value.GetDouble();
+        }
+
+        return new TrainerConfiguration(trainer ?? throw new FormatException("the configuration names no trainer"), values);
+    }
 }

@@ -14,7 +14,7 @@ namespace Accountant.Ledger;
 /// MODE</c>, a lock held until commit or rollback, so appends are serialized by the server (readers are not blocked)
 /// and look numbers stay gapless under any number of concurrent writers.
 /// </summary>
-public sealed class PostgresLedgerStore : ILedgerStore
+public sealed partial class PostgresLedgerStore : ILedgerStore
 {
     /// <summary>The schema version this build writes; kept in the <c>ledger_meta</c> table. Same numbering as SQLite.</summary>
     public const int SchemaVersion = SqliteLedgerStore.SchemaVersion;
@@ -318,6 +318,14 @@ public sealed class PostgresLedgerStore : ILedgerStore
     public IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks) => Guarded(() =>
     {
         using var transaction = BeginWrite();
+        var written = AppendLooksInTransaction(holdout, looks);
+        transaction.Commit();
+        return written;
+    });
+
+    /// <summary>The work of <see cref="AppendLooks"/> inside a write transaction (holding the chain lock) the caller began and will commit.</summary>
+    private List<Look> AppendLooksInTransaction(Holdout holdout, IReadOnlyList<NewLook> looks)
+    {
         // The holdout's last look number and the chain's tail in one round trip.
         int number;
         long sequence;
@@ -374,10 +382,9 @@ public sealed class PostgresLedgerStore : ILedgerStore
             batch.ExecuteNonQuery();
         }
 
-        transaction.Commit();
         return looks.Select((look, i) => new Look(firstSequence + i, firstNumber + i, look.Configuration, digests[i], look.Score, look.LossEncoding,
             look.Search, look.Stage, look.Adaptive, recordedAt, look.Seconds, look.Release)).ToList();
-    });
+    }
 
     /// <summary>Sends the batch by binary COPY: the chain entries as <paramref name="link"/> yields them, then the looks.</summary>
     private void CopyLooks(Holdout holdout, IReadOnlyList<NewLook> looks, Func<int, (byte[] Previous, byte[] Hash)> link, string[] digests, long firstSequence, int firstNumber, string recorded)

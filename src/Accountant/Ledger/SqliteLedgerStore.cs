@@ -11,7 +11,7 @@ namespace Accountant.Ledger;
 /// <see cref="Verify"/> recomputes every hash from the typed rows, so an edit to any row breaks the chain.
 /// Triggers refuse UPDATE and DELETE, so the append-only rule also holds against careless SQL.
 /// </summary>
-public sealed class SqliteLedgerStore : ILedgerStore
+public sealed partial class SqliteLedgerStore : ILedgerStore
 {
     /// <summary>The schema version this build writes (PRAGMA user_version).</summary>
     /// <remarks>Version 2 added how a look was released (guard, released value, holdout answered, training score);
@@ -381,6 +381,14 @@ public sealed class SqliteLedgerStore : ILedgerStore
     public IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks) => Guarded(() =>
     {
         using var transaction = _connection.BeginTransaction(deferred: false);
+        var written = AppendLooksInTransaction(holdout, looks);
+        transaction.Commit();
+        return written;
+    });
+
+    /// <summary>The work of <see cref="AppendLooks"/> inside a write transaction the caller began and will commit.</summary>
+    private List<Look> AppendLooksInTransaction(Holdout holdout, IReadOnlyList<NewLook> looks)
+    {
         var number = Convert.ToInt32(ScalarWith("SELECT COALESCE(MAX(number), 0) FROM looks WHERE holdout_id = $id;", ("$id", holdout.Key)), CultureInfo.InvariantCulture);
         var (sequence, previous) = Tail();
         var recorded = Chain.Timestamp(_clock.GetUtcNow());
@@ -467,9 +475,8 @@ public sealed class SqliteLedgerStore : ILedgerStore
             sequence++;
         }
 
-        transaction.Commit();
         return written;
-    });
+    }
 
     public LookVoid AppendVoid(Holdout holdout, int lookNumber, string reason) => Guarded(() =>
     {
