@@ -60,18 +60,14 @@ public static class PostgresServer
         var folder = Path.Combine(Path.GetTempPath(), "accountant-pg-" + Guid.NewGuid().ToString("N")[..12]);
         Directory.CreateDirectory(folder);
         if (!OperatingSystem.IsWindows()) File.SetUnixFileMode(folder, UnixFileMode.UserRead | UnixFileMode.UserWrite | UnixFileMode.UserExecute | UnixFileMode.GroupRead | UnixFileMode.GroupExecute | UnixFileMode.OtherRead | UnixFileMode.OtherExecute);
-        var data = Path.Combine(folder, "pg");
-        var (code, output, error) = Run(script, "start", data, password);
+        var (code, output, error) = Run(script, "start", folder, password);
         if (code != 0)
         {
+            Run(script, "stop", folder, null);
             throw new InvalidOperationException($"could not start a throwaway PostgreSQL ({error.Trim()}); install Debian's postgresql package or set {Variable}.");
         }
 
-        return new Cluster(output.Trim(), () =>
-        {
-            Run(script, "stop", data, null); // stops the server and removes its folder
-            try { Directory.Delete(folder); } catch (IOException) { } catch (UnauthorizedAccessException) { }
-        });
+        return new Cluster(output.Trim(), () => Run(script, "stop", folder, null)); // stops the server and removes its folder
     }
 
     /// <summary>A running throwaway cluster: its connection string (without any password) and how to stop it.</summary>
