@@ -78,7 +78,6 @@ static int Peak()
     var flops = 2.0 * 16 * 12 * (double)iterations * threads;
     Console.WriteLine($"fma_peak_gflops {flops / seconds / 1e9:F1}");
     Console.WriteLine($"threads {threads}");
-    Console.WriteLine($"vector_kernel {BootstrapEngine.Vectorized}");
     return 0;
 }
 
@@ -108,7 +107,16 @@ static int Bootstrap(string[] a)
     BootstrapResult? result = null;
     result = BootstrapEstimates.Run(matrix, selectable, best, settings); // warm-up (JIT)
     var whole = Median(Enumerable.Range(0, 7).Select(_ => Time(() => result = BootstrapEstimates.Run(matrix, selectable, best, settings))));
-    var engine = Median(Enumerable.Range(0, 7).Select(_ => Time(() => BootstrapEngine.Run(matrix, b, seed, selectable))));
+    BootstrapDraws? draws = null;
+    var engine = Median(Enumerable.Range(0, 7).Select(_ => Time(() => draws = BootstrapEngine.Run(matrix, b, seed, selectable))));
+    // The kernel(s) that computed the sums: AVX-512BW, AVX2 or scalar, whichever this machine has.
+    var kernel = string.Join("+", Enum.GetValues<BootstrapKernel>().Where(x => draws!.Kernels.HasFlag(x)).Select(x => x switch
+    {
+        BootstrapKernel.Avx512BW => "AVX-512BW",
+        BootstrapKernel.Avx2 => "AVX2",
+        _ => "scalar",
+    }));
+    Console.WriteLine($"accountant_kernel {kernel}");
     Console.WriteLine($"accountant_bootstrap_seconds {whole:F4}");
     Console.WriteLine($"accountant_engine_seconds {engine:F4}");
     // Multiply-adds a dense K×n by n×B product would do; the bit-plane engine does the same sum with popcounts.
