@@ -39,7 +39,7 @@ public enum BootstrapKernel
 /// The bootstrap on 0/1 loss bitsets. A resample is a multiset of n row indices drawn uniformly with replacement
 /// (its weights are Multinomial(n; 1/n, …, 1/n)); a look's in-bag loss is Σ_i w_i·loss_i. The weights are split into
 /// bit planes (w = Σ_p 2^p·bit_p), so that the weighted sum over a 0/1 loss row is Σ_p 2^p·popcount(loss AND plane_p):
-/// 512 examples per vector instruction instead of one multiply-add each.
+/// 512 (AVX-512BW) or 256 (AVX2) examples per vector instruction instead of one multiply-add each.
 /// </summary>
 /// <remarks>
 /// Resamples are processed in groups of four, spread over cores with <see cref="Parallel.For(int, int, Action{int})"/>;
@@ -55,7 +55,7 @@ public static class BootstrapEngine
     /// <summary>Resamples handled together: their planes share one pass over the loss rows.</summary>
     public const int GroupSize = 4;
 
-    /// <summary>Planes the vector kernel handles: 8 bits × (2^5 − 1) = 248 still fits a byte.</summary>
+    /// <summary>Planes the vector kernels handle: 8 bits × (2^5 − 1) = 248 still fits a byte.</summary>
     private const int MaxVectorPlanes = 5;
 
     private static readonly Vector128<byte>[] Luts = BuildLuts();
