@@ -43,6 +43,7 @@ $PY bench/bootstrap_numpy.py 1000 10000 1000 1 "$WORK/losses.u8" | tee "$WORK/nu
 ours=$(value accountant_bootstrap_seconds "$WORK/bootstrap.txt"); theirs=$(value numpy_bootstrap_seconds "$WORK/numpy.txt")
 peak=$(value fma_peak_gflops "$WORK/peak.txt")
 echo "RATIO bootstrap time, accountant / NumPy: $(ratio "$ours" "$theirs")  (target <= 1.0)"
+echo "KERNEL bootstrap popcount kernel that ran: $(value accountant_kernel "$WORK/bootstrap.txt")  (AVX-512BW, AVX2 or scalar, whichever this machine has)"
 echo "RATE  NumPy matrix product: $(value numpy_matmul_gflops "$WORK/numpy.txt") GFLOP/s = $(ratio "$(value numpy_matmul_gflops "$WORK/numpy.txt")" "$peak") of the FMA peak"
 echo "RATE  accountant engine: $(value accountant_equivalent_gflops "$WORK/bootstrap.txt") GFLOP/s-equivalent (2·K·n·B multiply-adds done as popcounts) = $(ratio "$(value accountant_equivalent_gflops "$WORK/bootstrap.txt")" "$peak") of the FMA peak"
 

@@ -575,28 +575,41 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
         DbLedgerRows.ReadRelease(reader, 11));
 
     /// <summary>
-    /// Counts in one pass inside SQLite (only columns stored before the losses blob are read, so no blob is touched),
-    /// then reads the one best look in full.
+    /// Counts in one pass over the covering index <c>looks_by_score</c> (no table row and no blob is touched), finds the
+    /// best score by walking that index from the better end past voided looks, then reads the one best look in full; all
+    /// in one read transaction, so the counts and the best look come from the same ledger state.
     /// </summary>
+    /// <remarks>
+    /// The best score is not an aggregate of the counting pass: a per-row void test (a CASE over a subquery) in that pass
+    /// cost more than the rest of the statement on a million looks, and the index already holds the scores in order.
+    /// </remarks>
     public Statements.LookTally Tally(Holdout holdout, IReadOnlySet<int> voided) => Guarded(() =>
     {
+        using var snapshot = _connection.BeginTransaction(deferred: true);
         using var counts = Command("""
-            SELECT count(*), total(adaptive), total(loss_encoding = 0),
-                   min(CASE WHEN number IN (SELECT look_number FROM voids WHERE holdout_id = $id) THEN NULL ELSE score END),
-                   max(CASE WHEN number IN (SELECT look_number FROM voids WHERE holdout_id = $id) THEN NULL ELSE score END)
+            SELECT count(*), count(*) FILTER (WHERE adaptive <> 0), count(*) FILTER (WHERE loss_encoding = 0)
             FROM looks WHERE holdout_id = $id;
             """);
         counts.Parameters.AddWithValue("$id", holdout.Key);
         int looks, adaptive, scoreOnly;
-        double? bestScore;
         using (var reader = counts.ExecuteReader())
         {
             reader.Read();
             looks = reader.GetInt32(0);
-            adaptive = (int)reader.GetDouble(1);
-            scoreOnly = (int)reader.GetDouble(2);
-            var column = holdout.Metric.HigherIsBetter() ? 4 : 3;
-            bestScore = reader.IsDBNull(column) ? null : reader.GetDouble(column);
+            adaptive = reader.GetInt32(1);
+            scoreOnly = reader.GetInt32(2);
+        }
+
+        using var top = Command($"""
+            SELECT score FROM looks
+            WHERE holdout_id = $id AND number NOT IN (SELECT look_number FROM voids WHERE holdout_id = $id)
+            ORDER BY score {(holdout.Metric.HigherIsBetter() ? "DESC" : "ASC")} LIMIT 1;
+            """);
+        top.Parameters.AddWithValue("$id", holdout.Key);
+        double? bestScore = null;
+        using (var reader = top.ExecuteReader())
+        {
+            if (reader.Read()) bestScore = reader.GetDouble(0);
         }
 
         Look? best = null;

@@ -1,15 +1,26 @@
+using System.Runtime.Intrinsics.X86;
 using Accountant.Bounds;
 using Accountant.Estimates;
+using Xunit.Abstractions;
 
 namespace Accountant.Tests.Estimates;
 
 /// <summary>
 /// The bit-plane engine against a straightforward reference: draw n row indices per resample from the same random
 /// stream, add up the drawn rows' losses one by one, select the lowest, score it on the rows never drawn. Same seed,
-/// same result, exactly (these are integer counts).
+/// same result, exactly (these are integer counts). Every kernel this machine can run (scalar always; AVX2 and
+/// AVX-512BW when the runtime reports them) is checked on its own, so that a machine with AVX2 only tests its AVX2 path.
 /// </summary>
-public class BootstrapEngineTests
+public class BootstrapEngineTests(ITestOutputHelper output)
 {
+    /// <summary>The kernels this machine can run, by the runtime's own hardware checks, not the engine's.</summary>
+    internal static BootstrapKernel[] Kernels() =>
+    [
+        BootstrapKernel.Scalar,
+        .. Avx2.IsSupported ? [BootstrapKernel.Avx2] : Array.Empty<BootstrapKernel>(),
+        .. Avx512BW.IsSupported ? [BootstrapKernel.Avx512BW] : Array.Empty<BootstrapKernel>(),
+    ];
+
     /// <summary>The reference: one resample, row by row, as the definition reads.</summary>
     internal static (int[] Sums, int Selected, int OobErrors, int OobSize) Reference(bool[][] losses, int n, ulong seed, int resample, bool[]? selectable)
     {
@@ -43,14 +54,17 @@ public class BootstrapEngineTests
     [InlineData(6, 100, 9, 4UL)]
     [InlineData(13, 513, 10, 5UL)]
     [InlineData(5, 2000, 6, 6UL)]
-    public void Engine_equals_the_reference_for_both_kernels(int rows, int n, int resamples, ulong seed)
+    public void Engine_equals_the_reference_for_every_kernel(int rows, int n, int resamples, ulong seed)
     {
         var losses = RandomLosses(rows, n, 0.3, (int)seed);
         var matrix = Matrix(losses, n);
         var selectable = Enumerable.Range(0, rows).Select(k => k % 4 != 1 || rows == 1).ToArray();
-        foreach (var vector in new[] { true, false })
+        foreach (var kernel in Kernels())
         {
-            var draws = BootstrapEngine.Run(matrix, resamples, seed, selectable, vector);
+            var draws = BootstrapEngine.Run(matrix, resamples, seed, selectable, kernel, maxThreads: null);
+            // Multinomial(n; 1/n, …) counts of 32 or more need six planes; at these n they do not occur, so the
+            // requested kernel computed every group.
+            Assert.Equal(kernel, draws.Kernels);
             for (var b = 0; b < resamples; b++)
             {
                 var (sums, selected, oobErrors, oobSize) = Reference(losses, n, seed, b, selectable);
@@ -58,6 +72,58 @@ public class BootstrapEngineTests
                 Assert.Equal(selected, draws.Selected[b]);
                 Assert.Equal(oobErrors, draws.OutOfBagErrors[b]);
                 Assert.Equal(oobSize, draws.OutOfBagSize[b]);
+            }
+        }
+    }
+
+    [Fact]
+    public void The_engine_runs_the_widest_kernel_the_hardware_has()
+    {
+        // The expectation comes from the runtime's hardware checks (System.Runtime.Intrinsics.X86), the order from the
+        // engine's design: AVX-512BW over AVX2 over scalar. On an AVX2-only machine this is the AVX2 kernel.
+        var expected = Avx512BW.IsSupported ? BootstrapKernel.Avx512BW : Avx2.IsSupported ? BootstrapKernel.Avx2 : BootstrapKernel.Scalar;
+        var losses = RandomLosses(7, 300, 0.3, 1);
+        var draws = BootstrapEngine.Run(Matrix(losses, 300), 9, 1);
+        output.WriteLine($"kernel that ran: {draws.Kernels}; AVX2 {Avx2.IsSupported}, AVX-512BW {Avx512BW.IsSupported}");
+        Assert.Equal(expected, BootstrapEngine.Kernel);
+        Assert.Equal(expected, draws.Kernels);
+        Assert.Equal(BootstrapKernel.Scalar, BootstrapEngine.Run(Matrix(losses, 300), 9, 1, vector: false).Kernels);
+        foreach (var missing in new[] { BootstrapKernel.Avx2, BootstrapKernel.Avx512BW }.Except(Kernels()))
+        {
+            Assert.Throws<ArgumentException>(() => BootstrapEngine.Run(Matrix(losses, 300), 9, 1, null, missing, null));
+        }
+    }
+
+    [Theory]
+    [InlineData(1, 3, 1)]
+    [InlineData(2, 7, 2)]
+    [InlineData(3, 700, 3)]
+    [InlineData(4, 1025, 5)]
+    [InlineData(5, 2000, 9)]
+    [InlineData(6, 513, 7)]
+    [InlineData(7, 64, 6)]
+    public void Weighted_sums_equal_the_definition_for_every_plane_count(int planes, int n, int vectors)
+    {
+        // Weights drawn uniformly from [0, 2^planes), with the largest value forced into each group of four, so every
+        // group has exactly that many bit planes: 1 to 5 run the vector kernels, 6 and 7 fall back to scalar. The
+        // reference is Σ_i w_i·loss_i written out, as the definition reads.
+        var random = new Random(planes * 1000 + n);
+        var losses = RandomLosses(11, n, 0.4, planes);
+        var matrix = Matrix(losses, n);
+        var weights = Enumerable.Range(0, vectors).Select(_ => Enumerable.Range(0, n).Select(_ => random.Next(1 << planes)).ToArray()).ToArray();
+        for (var v = 0; v < vectors; v += BootstrapEngine.GroupSize) weights[v][random.Next(n)] = (1 << planes) - 1;
+        foreach (var kernel in Kernels())
+        {
+            var (sums, ran) = BootstrapEngine.WeightedSums(matrix, weights, kernel);
+            Assert.Equal(planes <= 5 ? kernel : BootstrapKernel.Scalar, ran);
+            for (var v = 0; v < vectors; v++)
+            {
+                for (var k = 0; k < losses.Length; k++)
+                {
+                    var expected = 0;
+                    for (var i = 0; i < n; i++) expected += losses[k][i] ? weights[v][i] : 0;
+                    Assert.Equal(expected, sums[v * losses.Length + k]);
+                }
             }
         }
     }
