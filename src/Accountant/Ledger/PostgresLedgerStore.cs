@@ -266,51 +266,11 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
         return FindHoldout(name)!;
     });
 
-    public Holdout? FindHoldout(string name) => Guarded(() =>
-    {
-        using var command = Command("SELECT id, name, size, metric, loss_low, loss_high, fingerprint, created_at FROM holdouts WHERE name = @name;");
-        command.Parameters.AddWithValue("name", name);
-        using var reader = command.ExecuteReader();
-        return reader.Read() ? ReadHoldout(reader) : null;
-    });
+    public Holdout? FindHoldout(string name) => Guarded(() => LedgerReads.FindHoldout(_connection, name));
 
-    public IReadOnlyList<Holdout> Holdouts() => Guarded(() =>
-    {
-        using var command = Command("SELECT id, name, size, metric, loss_low, loss_high, fingerprint, created_at FROM holdouts ORDER BY seq;");
-        using var reader = command.ExecuteReader();
-        var holdouts = new List<Holdout>();
-        while (reader.Read()) holdouts.Add(ReadHoldout(reader));
-        return holdouts;
-    });
+    public IReadOnlyList<Holdout> Holdouts() => Guarded(() => LedgerReads.Holdouts(_connection));
 
-    private static Holdout ReadHoldout(NpgsqlDataReader reader) => new(
-        reader.GetInt64(0),
-        reader.GetString(1),
-        reader.GetInt32(2),
-        MetricExtensions.Parse(reader.GetString(3)),
-        new LossRange(reader.GetDouble(4), reader.GetDouble(5)),
-        reader.GetString(6),
-        Chain.ParseTimestamp(reader.GetString(7)));
-
-    public IReadOnlyList<HoldoutExample> Examples(Holdout holdout) => Guarded(() =>
-    {
-        using var command = Command("SELECT ids, labels FROM holdouts WHERE id = @id;");
-        command.Parameters.AddWithValue("id", holdout.Key);
-        using var reader = command.ExecuteReader();
-        if (!reader.Read())
-        {
-            throw new AccountantException(ErrorKind.Integrity, $"holdout '{holdout.Name}' vanished from the ledger; run 'accountant verify'.");
-        }
-
-        var ids = Fingerprint.UnpackStrings((byte[])reader.GetValue(0));
-        var labels = Fingerprint.UnpackStrings((byte[])reader.GetValue(1));
-        if (ids.Count != labels.Count || ids.Count != holdout.Size)
-        {
-            throw new AccountantException(ErrorKind.Integrity, $"holdout '{holdout.Name}' has damaged examples in the ledger; run 'accountant verify'.");
-        }
-
-        return ids.Select((id, i) => new HoldoutExample(id, labels[i])).ToList();
-    });
+    public IReadOnlyList<HoldoutExample> Examples(Holdout holdout) => Guarded(() => LedgerReads.Examples(_connection, holdout));
 
     /// <summary>Batches at least this large go in by binary COPY; smaller ones by prepared inserts.</summary>
     private const int CopyBatch = 16;
@@ -530,48 +490,15 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
         return new TestOpening(sequence, lookNumber, testSize, testFingerprint, testScore, Chain.ParseTimestamp(recorded));
     });
 
-    private bool LookExists(Holdout holdout, int lookNumber) =>
-        Convert.ToInt64(ScalarWith("SELECT count(*) FROM looks WHERE holdout_id = @id AND number = @number;", ("id", holdout.Key), ("number", lookNumber)), CultureInfo.InvariantCulture) > 0;
+    private bool LookExists(Holdout holdout, int lookNumber) => LedgerReads.LookExists(_connection, holdout, lookNumber);
 
-    public IReadOnlyList<TestOpening> Openings(Holdout holdout) => Guarded(() =>
-    {
-        using var command = Command("SELECT seq, look_number, test_size, test_fingerprint, test_score, recorded_at FROM openings WHERE holdout_id = @id ORDER BY seq;");
-        command.Parameters.AddWithValue("id", holdout.Key);
-        using var reader = command.ExecuteReader();
-        var openings = new List<TestOpening>();
-        while (reader.Read())
-        {
-            openings.Add(new TestOpening(reader.GetInt64(0), reader.GetInt32(1), reader.GetInt32(2), reader.GetString(3), reader.GetDouble(4), Chain.ParseTimestamp(reader.GetString(5))));
-        }
+    public IReadOnlyList<TestOpening> Openings(Holdout holdout) => Guarded(() => LedgerReads.Openings(_connection, holdout));
 
-        return openings;
-    });
+    public IReadOnlyList<Look> Looks(Holdout holdout) => Guarded(() => LedgerReads.Looks(_connection, holdout));
 
-    public IReadOnlyList<Look> Looks(Holdout holdout) => Guarded(() =>
-    {
-        using var command = Command($"SELECT {LookColumns} FROM looks WHERE holdout_id = @id ORDER BY number;");
-        command.Parameters.AddWithValue("id", holdout.Key);
-        using var reader = command.ExecuteReader();
-        var looks = new List<Look>();
-        while (reader.Read()) looks.Add(ReadLook(reader));
-        return looks;
-    });
+    private const string LookColumns = LedgerReads.LookColumns;
 
-    private const string LookColumns = "seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at, seconds, guard, released, holdout_answered, train_score";
-
-    private static Look ReadLook(NpgsqlDataReader reader) => new(
-        reader.GetInt64(0),
-        reader.GetInt32(1),
-        reader.GetString(2),
-        reader.GetString(3),
-        reader.GetDouble(4),
-        (LossEncoding)reader.GetInt32(5),
-        reader.IsDBNull(6) ? null : reader.GetString(6),
-        reader.IsDBNull(7) ? null : reader.GetString(7),
-        reader.GetInt32(8) != 0,
-        Chain.ParseTimestamp(reader.GetString(9)),
-        reader.IsDBNull(10) ? null : reader.GetDouble(10),
-        DbLedgerRows.ReadRelease(reader, 11));
+    private static Look ReadLook(System.Data.Common.DbDataReader reader) => LedgerReads.ReadLook(reader);
 
     /// <summary>Counts in one query over the covering index, then reads the one best look in full.</summary>
     public Statements.LookTally Tally(Holdout holdout, IReadOnlySet<int> voided) => Guarded(() =>
@@ -630,24 +557,11 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
         return new Statements.LookTally(looks, adaptive, scoreOnly, best, pattern);
     });
 
-    public IReadOnlyList<LookVoid> Voids(Holdout holdout) => Guarded(() =>
-    {
-        using var command = Command("SELECT seq, look_number, reason, recorded_at FROM voids WHERE holdout_id = @id ORDER BY seq;");
-        command.Parameters.AddWithValue("id", holdout.Key);
-        using var reader = command.ExecuteReader();
-        var voids = new List<LookVoid>();
-        while (reader.Read())
-        {
-            voids.Add(new LookVoid(reader.GetInt64(0), reader.GetInt32(1), reader.GetString(2), Chain.ParseTimestamp(reader.GetString(3))));
-        }
+    public IReadOnlyList<LookVoid> Voids(Holdout holdout) => Guarded(() => LedgerReads.Voids(_connection, holdout));
 
-        return voids;
-    });
+    public byte[]? LossBytes(Holdout holdout, int lookNumber) => Guarded(() => LedgerReads.LossBytes(_connection, holdout, lookNumber));
 
-    public byte[]? LossBytes(Holdout holdout, int lookNumber) => Guarded(() =>
-        ScalarWith("SELECT losses FROM looks WHERE holdout_id = @id AND number = @number;", ("id", holdout.Key), ("number", lookNumber)) as byte[]);
-
-    public string? ChainHead() => Guarded(() => Scalar("SELECT hash FROM entries ORDER BY seq DESC LIMIT 1;") is byte[] hash ? Chain.Hex(hash) : null);
+    public string? ChainHead() => Guarded(() => LedgerReads.ChainHead(_connection));
 
     public ChainReport Verify(string? expectedHead = null) => Guarded(() => new ChainVerifier(Rows()).Run(expectedHead));
 
@@ -667,12 +581,7 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
         return report;
     });
 
-    private (long Sequence, byte[] Previous) Tail()
-    {
-        using var command = Command("SELECT seq, hash FROM entries ORDER BY seq DESC LIMIT 1;");
-        using var reader = command.ExecuteReader();
-        return reader.Read() ? (reader.GetInt64(0) + 1, (byte[])reader.GetValue(1)) : (1L, Chain.Genesis);
-    }
+    private (long Sequence, byte[] Previous) Tail() => LedgerReads.Tail(_connection);
 
     private void InsertEntry(long sequence, string kind, byte[] previous, byte[] hash)
     {

@@ -1,0 +1,157 @@
+using System.Data;
+using System.Data.Common;
+using Accountant.Bounds;
+
+namespace Accountant.Ledger;
+
+/// <summary>
+/// The reads both backends answer with the same SQL over the same tables (named parameters in the <c>@name</c> form,
+/// which SQLite and Npgsql both take), so each store's read methods are one line around these.
+/// </summary>
+internal static class LedgerReads
+{
+    private const string HoldoutColumns = "id, name, size, metric, loss_low, loss_high, fingerprint, created_at";
+
+    /// <summary>The look columns <see cref="ReadLook"/> reads, in its order (the losses blob is not among them).</summary>
+    public const string LookColumns = "seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at, seconds, guard, released, holdout_answered, train_score";
+
+    public static Holdout? FindHoldout(DbConnection connection, string name)
+    {
+        using var command = Command(connection, $"SELECT {HoldoutColumns} FROM holdouts WHERE name = @name;", ("@name", name));
+        using var reader = command.ExecuteReader();
+        return reader.Read() ? ReadHoldout(reader) : null;
+    }
+
+    public static IReadOnlyList<Holdout> Holdouts(DbConnection connection)
+    {
+        using var command = Command(connection, $"SELECT {HoldoutColumns} FROM holdouts ORDER BY seq;");
+        using var reader = command.ExecuteReader();
+        var holdouts = new List<Holdout>();
+        while (reader.Read()) holdouts.Add(ReadHoldout(reader));
+        return holdouts;
+    }
+
+    private static Holdout ReadHoldout(DbDataReader reader) => new(
+        reader.GetInt64(0),
+        reader.GetString(1),
+        reader.GetInt32(2),
+        MetricExtensions.Parse(reader.GetString(3)),
+        new LossRange(reader.GetDouble(4), reader.GetDouble(5)),
+        reader.GetString(6),
+        Chain.ParseTimestamp(reader.GetString(7)));
+
+    public static IReadOnlyList<HoldoutExample> Examples(DbConnection connection, Holdout holdout)
+    {
+        using var command = Command(connection, "SELECT ids, labels FROM holdouts WHERE id = @id;", ("@id", holdout.Key));
+        using var reader = command.ExecuteReader();
+        if (!reader.Read())
+        {
+            throw new AccountantException(ErrorKind.Integrity, $"holdout '{holdout.Name}' vanished from the ledger; run 'accountant verify'.");
+        }
+
+        var ids = Fingerprint.UnpackStrings((byte[])reader.GetValue(0));
+        var labels = Fingerprint.UnpackStrings((byte[])reader.GetValue(1));
+        if (ids.Count != labels.Count || ids.Count != holdout.Size)
+        {
+            throw new AccountantException(ErrorKind.Integrity, $"holdout '{holdout.Name}' has damaged examples in the ledger; run 'accountant verify'.");
+        }
+
+        // An array and a loop rather than LINQ: ReadyToRun precompiles this, which keeps a one-look record fast.
+        var examples = new HoldoutExample[ids.Count];
+        for (var i = 0; i < examples.Length; i++) examples[i] = new HoldoutExample(ids[i], labels[i]);
+        return examples;
+    }
+
+    public static IReadOnlyList<TestOpening> Openings(DbConnection connection, Holdout holdout)
+    {
+        using var command = Command(connection, "SELECT seq, look_number, test_size, test_fingerprint, test_score, recorded_at FROM openings WHERE holdout_id = @id ORDER BY seq;", ("@id", holdout.Key));
+        using var reader = command.ExecuteReader();
+        var openings = new List<TestOpening>();
+        while (reader.Read())
+        {
+            openings.Add(new TestOpening(reader.GetInt64(0), reader.GetInt32(1), reader.GetInt32(2), reader.GetString(3), reader.GetDouble(4), Chain.ParseTimestamp(reader.GetString(5))));
+        }
+
+        return openings;
+    }
+
+    public static IReadOnlyList<Look> Looks(DbConnection connection, Holdout holdout)
+    {
+        using var command = Command(connection, $"SELECT {LookColumns} FROM looks WHERE holdout_id = @id ORDER BY number;", ("@id", holdout.Key));
+        using var reader = command.ExecuteReader();
+        var looks = new List<Look>();
+        while (reader.Read()) looks.Add(ReadLook(reader));
+        return looks;
+    }
+
+    /// <summary>One look from a row of <see cref="LookColumns"/>.</summary>
+    public static Look ReadLook(DbDataReader reader) => new(
+        reader.GetInt64(0),
+        reader.GetInt32(1),
+        reader.GetString(2),
+        reader.GetString(3),
+        reader.GetDouble(4),
+        (LossEncoding)reader.GetInt32(5),
+        reader.IsDBNull(6) ? null : reader.GetString(6),
+        reader.IsDBNull(7) ? null : reader.GetString(7),
+        reader.GetInt32(8) != 0,
+        Chain.ParseTimestamp(reader.GetString(9)),
+        reader.IsDBNull(10) ? null : reader.GetDouble(10),
+        DbLedgerRows.ReadRelease(reader, 11));
+
+    public static IReadOnlyList<LookVoid> Voids(DbConnection connection, Holdout holdout)
+    {
+        using var command = Command(connection, "SELECT seq, look_number, reason, recorded_at FROM voids WHERE holdout_id = @id ORDER BY seq;", ("@id", holdout.Key));
+        using var reader = command.ExecuteReader();
+        var voids = new List<LookVoid>();
+        while (reader.Read())
+        {
+            voids.Add(new LookVoid(reader.GetInt64(0), reader.GetInt32(1), reader.GetString(2), Chain.ParseTimestamp(reader.GetString(3))));
+        }
+
+        return voids;
+    }
+
+    public static byte[]? LossBytes(DbConnection connection, Holdout holdout, int lookNumber)
+    {
+        using var command = Command(connection, "SELECT losses FROM looks WHERE holdout_id = @id AND number = @number;", ("@id", holdout.Key), ("@number", lookNumber));
+        return command.ExecuteScalar() as byte[];
+    }
+
+    public static bool LookExists(DbConnection connection, Holdout holdout, int lookNumber)
+    {
+        using var command = Command(connection, "SELECT count(*) FROM looks WHERE holdout_id = @id AND number = @number;", ("@id", holdout.Key), ("@number", lookNumber));
+        return Convert.ToInt64(command.ExecuteScalar(), System.Globalization.CultureInfo.InvariantCulture) > 0;
+    }
+
+    /// <summary>The hash of the last entry, hex, or null for an empty ledger.</summary>
+    public static string? ChainHead(DbConnection connection)
+    {
+        using var command = Command(connection, "SELECT hash FROM entries ORDER BY seq DESC LIMIT 1;");
+        return command.ExecuteScalar() is byte[] hash ? Chain.Hex(hash) : null;
+    }
+
+    /// <summary>The number the next entry takes and the hash it links to.</summary>
+    public static (long Sequence, byte[] Previous) Tail(DbConnection connection)
+    {
+        using var command = Command(connection, "SELECT seq, hash FROM entries ORDER BY seq DESC LIMIT 1;");
+        using var reader = command.ExecuteReader();
+        return reader.Read() ? (reader.GetInt64(0) + 1, (byte[])reader.GetValue(1)) : (1L, Chain.Genesis);
+    }
+
+    private static DbCommand Command(DbConnection connection, string sql, params (string Name, object Value)[] parameters)
+    {
+        var command = connection.CreateCommand();
+        command.CommandText = sql;
+        foreach (var (name, value) in parameters)
+        {
+            var parameter = command.CreateParameter();
+            parameter.ParameterName = name;
+            parameter.Value = value;
+            parameter.DbType = value switch { long => DbType.Int64, int => DbType.Int32, _ => DbType.String };
+            command.Parameters.Add(parameter);
+        }
+
+        return command;
+    }
+}
