@@ -40,14 +40,19 @@ public abstract class SharedPlanContract
         first.Dispose();
         var completed = new ConcurrentBag<(string Worker, int Task, int Look)>();
         var errors = new ConcurrentBag<Exception>();
+        // All workers start together, and each "trains" for a few milliseconds between claim and completion, as a real
+        // worker does; otherwise the first thread to start can finish all 60 before the others have opened the ledger.
+        using var start = new Barrier(workers);
         var threads = Enumerable.Range(0, workers).Select(w => new Thread(() =>
         {
             try
             {
                 using var book = Open(_clock);
                 var name = $"worker-{w}";
+                start.SignalAndWait(TimeSpan.FromSeconds(60));
                 while (book.SharedPlans.Claim(plan, name, TimeSpan.FromMinutes(5)) is { Task: { } task })
                 {
+                    Thread.Sleep(5);
                     var look = book.CompleteTask(plan, task.Number, name, Scored(task, task.Number % 10 / 10.0));
                     Assert.NotNull(look); // nobody else can hold a task whose lease runs
                     completed.Add((name, task.Number, look.Number));
