@@ -6,6 +6,11 @@ set -euo pipefail
 action=${1:?usage: postgres.sh start|stop DIR}
 dir=${2:?usage: postgres.sh start|stop DIR}
 bin=$(ls -d /usr/lib/postgresql/*/bin 2>/dev/null | sort -V | tail -1)
+# A fresh Debian machine may not have the server yet: install Debian's package when we can (as root, with apt-get).
+if [ "$action" = start ] && [ ! -x "$bin/initdb" ] && [ "$(id -u)" = 0 ] && command -v apt-get >/dev/null; then
+  { apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq postgresql; } >/dev/null 2>&1 || true
+  bin=$(ls -d /usr/lib/postgresql/*/bin 2>/dev/null | sort -V | tail -1)
+fi
 [ -x "$bin/initdb" ] || { echo "postgres.sh: PostgreSQL is not installed (apt-get install postgresql)" >&2; exit 1; }
 
 as_owner() {
