@@ -24,8 +24,15 @@ public sealed class SharedSearchTests(ITestOutputHelper output) : IDisposable
 
     private string Ledger => Path.Combine(_folder, "ledger.db");
 
-    /// <summary>Small trees only, so that the thirteen looks of a halving plan train in seconds.</summary>
-    private string QuickSpace()
+    /// <summary>
+    /// Small trees only, so that the thirteen looks of a halving plan train in seconds. Written once, before any worker
+    /// starts: workers running in parallel must not rewrite a file another one is reading.
+    /// </summary>
+    private string QuickSpace() => _space ??= WriteQuickSpace();
+
+    private string? _space;
+
+    private string WriteQuickSpace()
     {
         var path = Path.Combine(_folder, "space.json");
         File.WriteAllText(path, """{"trainers":[{"trainer":"fasttree","parameters":{"trees":{"scale":"integer","low":10,"high":20},"leaves":{"scale":"integer","low":2,"high":8}}}]}""");
@@ -52,12 +59,13 @@ public sealed class SharedSearchTests(ITestOutputHelper output) : IDisposable
         Bookkeeper.Create(Ledger).Dispose();
         var outcomes = new ConcurrentBag<TabularSearchOutcome>();
         var errors = new ConcurrentBag<Exception>();
+        var options = Options(data); // one set of settings, its space file written before any worker starts
         var workers = Enumerable.Range(0, 3).Select(_ => new Thread(() =>
         {
             try
             {
                 using var book = Bookkeeper.Open(Ledger);
-                outcomes.Add(new TabularSearch(book, Ledger).Run(Options(data)));
+                outcomes.Add(new TabularSearch(book, Ledger).Run(options));
             }
             catch (Exception e)
             {
