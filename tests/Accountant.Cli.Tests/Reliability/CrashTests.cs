@@ -23,7 +23,11 @@ public sealed class CrashTests(ITestOutputHelper output)
     {
         using var cli = new CliHarness();
         string? schema = null;
-        var ledger = postgres ? new Npgsql.NpgsqlConnectionStringBuilder(Accountant.Tests.Support.PostgresServer.NewSchema(out schema)).ConnectionString : cli.Ledger;
+        // The imports on PostgreSQL carry an application name of their own, so the test can tell when the server has
+        // finished with a killed one (see WaitForServer).
+        var ledger = postgres
+            ? new Npgsql.NpgsqlConnectionStringBuilder(Accountant.Tests.Support.PostgresServer.NewSchema(out schema)) { ApplicationName = "crash-" + Guid.NewGuid().ToString("N")[..12] }.ConnectionString
+            : cli.Ledger;
         try
         {
             Kill(cli, ledger, kills, postgres);
@@ -31,6 +35,27 @@ public sealed class CrashTests(ITestOutputHelper output)
         finally
         {
             if (schema is not null) Accountant.Tests.Support.PostgresServer.DropSchema(schema);
+        }
+    }
+
+    /// <summary>
+    /// A killed client's transaction is the server's to finish: a COMMIT the client sent just before it died still
+    /// completes (or the server rolls the transaction back when it notices the closed connection). Either way the outcome
+    /// is all or nothing, but it is settled only once the server has ended that client's session, so the test waits for
+    /// that before it counts.
+    /// </summary>
+    private static void WaitForServer(string ledger)
+    {
+        var application = new Npgsql.NpgsqlConnectionStringBuilder(ledger).ApplicationName!;
+        var deadline = DateTime.UtcNow + TimeSpan.FromSeconds(60);
+        using var connection = new Npgsql.NpgsqlConnection(Accountant.Tests.Support.PostgresServer.ConnectionString);
+        connection.Open();
+        using var command = new Npgsql.NpgsqlCommand("SELECT count(*) FROM pg_stat_activity WHERE application_name = @name;", connection);
+        command.Parameters.AddWithValue("name", application);
+        while ((long)command.ExecuteScalar()! > 0)
+        {
+            Assert.True(DateTime.UtcNow < deadline, "the server did not end a killed import's session within 60 s");
+            Thread.Sleep(20);
         }
     }
 
@@ -64,6 +89,7 @@ public sealed class CrashTests(ITestOutputHelper output)
                 // A write-ahead log left with frames in it means the kill came after the import began writing pages.
                 var wal = new FileInfo(cli.Ledger + "-wal");
                 if (!postgres && wal.Exists && wal.Length > 0) journalLeft++;
+                if (postgres) WaitForServer(ledger);
                 using var book = Bookkeeper.Open(ledger);
                 var report = book.Verify();
                 Assert.True(report.Valid, $"after kill {kill} at {delay:0} ms: {report.Problem}");
