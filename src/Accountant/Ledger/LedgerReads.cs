@@ -99,6 +99,35 @@ internal static class LedgerReads
         reader.IsDBNull(10) ? null : reader.GetDouble(10),
         DbLedgerRows.ReadRelease(reader, 11));
 
+    /// <summary>The earliest non-voided look with exactly this score (the tally's best), read in full.</summary>
+    public static Look? EarliestWithScore(DbConnection connection, Holdout holdout, double score)
+    {
+        using var command = Command(connection, $"""
+            SELECT {LookColumns} FROM looks
+            WHERE holdout_id = @id AND score = @score AND number NOT IN (SELECT look_number FROM voids WHERE holdout_id = @id)
+            ORDER BY number LIMIT 1;
+            """, ("@id", holdout.Key), ("@score", score));
+        using var reader = command.ExecuteReader();
+        return reader.Read() ? ReadLook(reader) : null;
+    }
+
+    /// <summary>Every look's adaptive flag and guard, in number order: what adaptive accounting needs, and no more.</summary>
+    public static List<Guards.AccountedLook> AdaptivePattern(DbConnection connection, Holdout holdout, int looks)
+    {
+        var pattern = new List<Guards.AccountedLook>(looks);
+        var specs = new Dictionary<string, Guards.GuardSpec>(StringComparer.Ordinal);
+        using var command = Command(connection, "SELECT adaptive, guard FROM looks WHERE holdout_id = @id ORDER BY number;", ("@id", holdout.Key));
+        using var reader = command.ExecuteReader();
+        while (reader.Read())
+        {
+            var guard = reader.IsDBNull(1) ? Guards.GuardSpec.Exact
+                : specs.TryGetValue(reader.GetString(1), out var known) ? known : specs[reader.GetString(1)] = Guards.GuardSpec.Parse(reader.GetString(1));
+            pattern.Add(new Guards.AccountedLook(reader.GetInt32(0) != 0, guard));
+        }
+
+        return pattern;
+    }
+
     public static IReadOnlyList<LookVoid> Voids(DbConnection connection, Holdout holdout)
     {
         using var command = Command(connection, "SELECT seq, look_number, reason, recorded_at FROM voids WHERE holdout_id = @id ORDER BY seq;", ("@id", holdout.Key));
@@ -148,7 +177,7 @@ internal static class LedgerReads
             var parameter = command.CreateParameter();
             parameter.ParameterName = name;
             parameter.Value = value;
-            parameter.DbType = value switch { long => DbType.Int64, int => DbType.Int32, _ => DbType.String };
+            parameter.DbType = value switch { long => DbType.Int64, int => DbType.Int32, double => DbType.Double, _ => DbType.String };
             command.Parameters.Add(parameter);
         }
 

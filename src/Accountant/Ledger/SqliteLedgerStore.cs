@@ -494,10 +494,6 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
 
     public IReadOnlyList<Look> Looks(Holdout holdout) => Guarded(() => LedgerReads.Looks(_connection, holdout));
 
-    private const string LookColumns = LedgerReads.LookColumns;
-
-    private static Look ReadLook(System.Data.Common.DbDataReader reader) => LedgerReads.ReadLook(reader);
-
     /// <summary>
     /// Counts in one pass over the covering index <c>looks_by_score</c> (no table row and no blob is touched), finds the
     /// best score by walking that index from the better end past voided looks, then reads the one best look in full; all
@@ -536,36 +532,10 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
             if (reader.Read()) bestScore = reader.GetDouble(0);
         }
 
-        Look? best = null;
-        if (bestScore is { } score)
-        {
-            using var pick = Command($"""
-                SELECT {LookColumns} FROM looks
-                WHERE holdout_id = $id AND score = $score AND number NOT IN (SELECT look_number FROM voids WHERE holdout_id = $id)
-                ORDER BY number LIMIT 1;
-                """);
-            pick.Parameters.AddWithValue("$id", holdout.Key);
-            pick.Parameters.AddWithValue("$score", score);
-            using var row = pick.ExecuteReader();
-            best = row.Read() ? ReadLook(row) : null;
-        }
+        var best = bestScore is { } score ? LedgerReads.EarliestWithScore(_connection, holdout, score) : null;
 
         // Adaptive accounting needs the order of adaptive flags and guards; read those two columns only when it applies.
-        List<Guards.AccountedLook>? pattern = null;
-        if (adaptive > 0)
-        {
-            pattern = new List<Guards.AccountedLook>(looks);
-            var specs = new Dictionary<string, Guards.GuardSpec>(StringComparer.Ordinal);
-            using var flags = Command("SELECT adaptive, guard FROM looks WHERE holdout_id = $id ORDER BY number;");
-            flags.Parameters.AddWithValue("$id", holdout.Key);
-            using var reader = flags.ExecuteReader();
-            while (reader.Read())
-            {
-                var guard = reader.IsDBNull(1) ? Guards.GuardSpec.Exact
-                    : specs.TryGetValue(reader.GetString(1), out var known) ? known : specs[reader.GetString(1)] = Guards.GuardSpec.Parse(reader.GetString(1));
-                pattern.Add(new Guards.AccountedLook(reader.GetInt32(0) != 0, guard));
-            }
-        }
+        var pattern = adaptive > 0 ? LedgerReads.AdaptivePattern(_connection, holdout, looks) : null;
 
         return new Statements.LookTally(looks, adaptive, scoreOnly, best, pattern);
     });
