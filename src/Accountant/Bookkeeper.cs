@@ -40,6 +40,10 @@ public sealed record LookInput
     /// <summary>The guard that releases the score to the search; null when the search is simply shown the score.</summary>
     public GuardSpec? Guard { get; init; }
 
+    /// <summary>The guard stream to release on (a name of the holdout's); null for the stream named by the guard's spelling.
+    /// A stream keeps one guard: naming it with another guard is refused.</summary>
+    public string? Stream { get; init; }
+
     /// <summary>The configuration's score on its training data (Thresholdout compares against it).</summary>
     public double? TrainScore { get; init; }
 }
@@ -66,11 +70,11 @@ public sealed partial class Bookkeeper : IDisposable
 
     public ILedgerStore Store { get; }
 
-    /// <summary>The randomness Thresholdout draws its noise from; seed it for reproducible releases.</summary>
-    public Random GuardRandom { get; set; } = new();
-
-    // Thresholdout's noisy threshold, kept between looks of one stream for as long as this object lives.
-    private readonly Dictionary<string, ThresholdoutNoise> _thresholds = new(StringComparer.Ordinal);
+    /// <summary>
+    /// The noise seed of a Thresholdout stream this object declares (its first look); null draws a random one. The seed is
+    /// recorded with the stream, and every later release on it, by any process, draws its noise from that seed.
+    /// </summary>
+    public ulong? GuardSeed { get; set; }
 
     /// <summary>Creates a new ledger: a SQLite file path, or a PostgreSQL address (see <see cref="LedgerLocation"/>).</summary>
     public static Bookkeeper Create(string location, TimeProvider? clock = null) => new(LedgerStores.Create(location, clock));
@@ -230,39 +234,50 @@ public sealed partial class Bookkeeper : IDisposable
             }
         }
 
-        // Guards keep state from one release to the next, so they are applied in order, after every input was checked.
-        Dictionary<string, GuardState>? streams = null;
-        var checkedClean = Array.TrueForAll(failures, f => f is null);
-        for (var i = 0; checkedClean && i < inputs.Count; i++)
-        {
-            if (inputs[i].Guard is not { } guard) continue;
-            try
-            {
-                prepared[i] = Release(holdout, prepared[i], guard, inputs[i].TrainScore, ref examples, streams ??= Streams(holdout));
-            }
-            catch (AccountantException e)
-            {
-                failures[i] = e;
-                break;
-            }
-        }
-
         var first = Array.FindIndex(failures, f => f is not null);
-        if (first >= 0)
-        {
-            var e = failures[first]!;
-            if (inputs.Count == 1 && describe is null) throw e;
-            var where = describe?.Invoke(first) ?? $"look {first + 1} of {inputs.Count}";
-            throw new AccountantException(e.Kind, $"{where}: {e.Message} Nothing was recorded.", e);
-        }
+        if (first >= 0) throw Positioned(failures[first]!, first, inputs.Count, describe);
+        if (!inputs.Any(i => i.Guard is not null)) return Store.AppendLooks(holdout, prepared);
 
-        return Store.AppendLooks(holdout, prepared);
+        // Guards keep state from one release to the next: they are applied in order, inside the write transaction, from the
+        // streams' state as the ledger holds it once the chain's lock is held, so that writers sharing a stream release one
+        // after the other, exactly as a single writer would, and a restarted writer continues where the stream left off.
+        return Store.AppendLooks(holdout, () =>
+        {
+            var streams = new Dictionary<string, OpenStream>(StringComparer.Ordinal);
+            var released = (NewLook[])prepared.Clone();
+            for (var i = 0; i < inputs.Count; i++)
+            {
+                if (inputs[i].Guard is not { } guard) continue;
+                try
+                {
+                    released[i] = Release(holdout, prepared[i], guard, inputs[i], ref examples, streams);
+                }
+                catch (AccountantException e)
+                {
+                    throw Positioned(e, i, inputs.Count, describe);
+                }
+            }
+
+            return released;
+        });
+    }
+
+    private static AccountantException Positioned(AccountantException e, int index, int count, Func<int, string>? describe)
+    {
+        if (count == 1 && describe is null) return e;
+        var where = describe?.Invoke(index) ?? $"look {index + 1} of {count}";
+        return new AccountantException(e.Kind, $"{where}: {e.Message} Nothing was recorded.", e);
     }
 
     private NewLook Prepare(Holdout holdout, LookInput input, ref IReadOnlyList<HoldoutExample>? examples)
     {
         var configuration = ConfigurationJson.Canonicalize(input.Configuration);
         if (input.Search is not null) CheckName(input.Search, "search label");
+        if (input.Stream is not null)
+        {
+            CheckName(input.Stream, "guard stream name");
+            if (input.Guard is null) throw AccountantException.BadArguments($"the guard stream '{input.Stream}' needs its guard; give --guard SPEC with --stream.");
+        }
         if (input.Stage is not null) CheckName(input.Stage, "stage");
         if ((input.Predictions is not null ? 1 : 0) + (input.Score is not null ? 1 : 0) + (input.Losses is not null ? 1 : 0) > 1)
         {
@@ -291,29 +306,53 @@ public sealed partial class Bookkeeper : IDisposable
         return new NewLook(configuration, score, LossEncoding.None, null, input.Search, input.Stage, input.Adaptive, input.Seconds);
     }
 
-    /// <summary>What each guard stream on the holdout has released so far, from the ledger.</summary>
-    private Dictionary<string, GuardState> Streams(Holdout holdout)
+    /// <summary>A guard stream while a batch releases on it: its guard, noise, state, and whether this batch declares it.</summary>
+    private sealed class OpenStream(GuardStream stream, GuardState state, bool declared)
     {
-        var streams = new Dictionary<string, GuardState>(StringComparer.Ordinal);
-        foreach (var look in Store.Looks(holdout))
+        public GuardStream Stream { get; } = stream;
+        public GuardState State { get; set; } = state;
+        public bool Declared { get; set; } = declared;
+        public IGuardNoise? Noise { get; } = stream.Seed is { } seed ? new SeededGuardNoise(seed) : null;
+    }
+
+    /// <summary>
+    /// Releases one look's score on its stream (<see cref="LookInput.Stream"/>, else the guard's spelling), reading the
+    /// stream's state from the ledger the first time the batch uses it; a stream used for the first time is declared with
+    /// its guard and, for Thresholdout, a noise seed (<see cref="GuardSeed"/>, else a random one), in the same transaction.
+    /// </summary>
+    private NewLook Release(Holdout holdout, NewLook look, GuardSpec guard, LookInput input, ref IReadOnlyList<HoldoutExample>? examples, Dictionary<string, OpenStream> streams)
+    {
+        var name = input.Stream ?? guard.ToString();
+        if (!streams.TryGetValue(name, out var stream))
         {
-            if (look.Release is not { } r) continue;
-            var state = streams.GetValueOrDefault(r.Guard, GuardState.Empty);
-            streams[r.Guard] = new GuardState(state.Releases + 1, state.HoldoutAnswers + (r.HoldoutAnswered ? 1 : 0), r.Value ?? state.LastReleased);
+            var recorded = Store.FindGuardStream(holdout, name);
+            if (recorded is not null && recorded.Guard.ToString() != guard.ToString())
+            {
+                throw AccountantException.BadArguments($"the guard stream '{name}' on holdout '{holdout.Name}' releases by {recorded.Guard}, not {guard}; give --guard {recorded.Guard} for it, or name a new stream with --stream NAME.");
+            }
+
+            if (recorded?.Declared is { Seed: { } declaredSeed } && GuardSeed is { } wanted && wanted != declaredSeed && guard.Kind == GuardKind.Thresholdout)
+            {
+                throw AccountantException.BadArguments($"the guard stream '{name}' on holdout '{holdout.Name}' draws its noise from seed {declaredSeed}, not {wanted}; leave out --seed (or give {declaredSeed}) to continue it, or name a new stream with --stream NAME.");
+            }
+
+            var declaration = recorded?.Declared ?? new GuardStream(name, guard, guard.Kind == GuardKind.Thresholdout ? GuardSeed ?? NewSeed() : null);
+            streams[name] = stream = new OpenStream(declaration, recorded?.State ?? GuardState.Empty, recorded?.Declared is not null);
         }
 
-        return streams;
+        var release = Guard.Apply(guard, stream.State, look.Score, Space(holdout, ref examples), holdout.Metric.HigherIsBetter(), input.TrainScore, stream.Noise);
+        var index = stream.State.Releases;
+        stream.State = stream.State.After(release);
+        var opens = stream.Declared ? null : stream.Stream;
+        stream.Declared = true;
+        return look with
+        {
+            Release = new Released(guard.ToString(), release.Value, release.HoldoutAnswered, input.TrainScore) { Stream = name, Index = index, Answers = stream.State.HoldoutAnswers },
+            Opens = opens,
+        };
     }
 
-    private NewLook Release(Holdout holdout, NewLook look, GuardSpec guard, double? trainScore, ref IReadOnlyList<HoldoutExample>? examples, Dictionary<string, GuardState> streams)
-    {
-        var key = guard.ToString();
-        var state = streams.GetValueOrDefault(key, GuardState.Empty);
-        if (!_thresholds.TryGetValue(key, out var noise)) _thresholds[key] = noise = new ThresholdoutNoise();
-        var release = Guard.Apply(guard, state, look.Score, Space(holdout, ref examples), holdout.Metric.HigherIsBetter(), trainScore, GuardRandom, noise);
-        streams[key] = new GuardState(state.Releases + 1, state.HoldoutAnswers + (release.HoldoutAnswered ? 1 : 0), release.Value ?? state.LastReleased);
-        return look with { Release = new Released(key, release.Value, release.HoldoutAnswered, trainScore) };
-    }
+    private static ulong NewSeed() => BitConverter.ToUInt64(System.Security.Cryptography.RandomNumberGenerator.GetBytes(8));
 
     /// <summary>The values a released score on this holdout can take, for counting release sequences.</summary>
     public ValueSpace Space(Holdout holdout)
@@ -324,17 +363,10 @@ public sealed partial class Bookkeeper : IDisposable
 
     private ValueSpace Space(Holdout holdout, ref IReadOnlyList<HoldoutExample>? examples)
     {
-        switch (holdout.Metric)
-        {
-            case Metric.Error or Metric.Accuracy:
-                return ValueSpace.ZeroOne(holdout.Size);
-            case Metric.Auc:
-                examples ??= Store.Examples(holdout);
-                var positives = examples.Count(e => e.Label == Losses.PositiveLabel);
-                return ValueSpace.Auc(positives, holdout.Size - positives);
-            default:
-                return ValueSpace.Bounded(holdout.LossRange.Low, holdout.LossRange.High);
-        }
+        var known = examples;
+        var space = ValueSpace.Of(holdout.Metric, holdout.Size, holdout.LossRange, () => (known ??= Store.Examples(holdout)).Count(e => e.Label == Losses.PositiveLabel));
+        examples = known;
+        return space;
     }
 
     /// <summary>Records an opening of the holdout's sealed test set for one look's configuration. Every opening is kept and counted.</summary>

@@ -22,10 +22,11 @@ internal sealed class RecordCommand : Command
         var adaptive = new Option<bool>("--adaptive") { Description = "The configuration was chosen using earlier scores on this holdout." };
         var guard = new Option<string?>("--guard") { Description = "Release the score through a guard: exact, rounded:D, ladder:STEP or thresholdout:T,SIGMA,BUDGET." };
         var trainScore = new Option<string?>("--train-score") { Description = "The configuration's score on its training data (thresholdout compares against it)." };
-        var seed = new Option<int?>("--seed") { Description = "Seed for the guard's noise (thresholdout)." };
+        var stream = new Option<string?>("--stream") { Description = "The guard stream to release on (default: the one named by the guard's spelling); a stream keeps its guard." };
+        var seed = new Option<ulong?>("--seed") { Description = "Seed of a new thresholdout stream's noise (recorded with the stream; later looks on it use the stream's own)." };
         var format = Common.Format("table", "json");
         Arguments.Add(name);
-        foreach (var option in new Option[] { configuration, predictions, score, search, stage, adaptive, guard, trainScore, seed, idColumn, predictionColumn, format }) Options.Add(option);
+        foreach (var option in new Option[] { configuration, predictions, score, search, stage, adaptive, guard, stream, trainScore, seed, idColumn, predictionColumn, format }) Options.Add(option);
 
         SetAction(r => Common.Guard(env, () =>
         {
@@ -49,10 +50,11 @@ internal sealed class RecordCommand : Command
                 Stage = r.GetValue(stage),
                 Adaptive = r.GetValue(adaptive),
                 Guard = spec,
+                Stream = r.GetValue(stream),
                 TrainScore = train,
             };
             using var book = Bookkeeper.Open(Common.LedgerPath(r, env), env.Clock);
-            if (r.GetValue(seed) is { } s) book.GuardRandom = new Random(s);
+            book.GuardSeed = r.GetValue(seed);
             var holdout = book.Holdout(r.GetValue(name)!);
             var look = book.RecordMany(holdout.Name, [input])[0];
             if (r.GetValue(format) == "json")
@@ -67,6 +69,7 @@ internal sealed class RecordCommand : Command
                     if (look.Release is { } release)
                     {
                         w.WriteString("guard", release.Guard);
+                        w.WriteString("stream", release.StreamName);
                         if (release.Value is { } v) w.WriteNumber("released", v); else w.WriteNull("released");
                         w.WriteBoolean("holdoutAnswered", release.HoldoutAnswered);
                     }
@@ -78,7 +81,8 @@ internal sealed class RecordCommand : Command
                 {
                     // A guarded look tells the search only the released value; the score itself stays in the ledger.
                     var told = release.Value is { } v ? Text.N(v) : "refused (the guard's budget is spent)";
-                    env.Output.WriteLine($"look {look.Number} on holdout '{holdout.Name}'{(look.Adaptive ? " (adaptive)" : "")}: released {told} by {release.Guard}");
+                    var on = release.StreamName == release.Guard ? "" : $" on stream '{release.StreamName}'";
+                    env.Output.WriteLine($"look {look.Number} on holdout '{holdout.Name}'{(look.Adaptive ? " (adaptive)" : "")}: released {told} by {release.Guard}{on}");
                 }
                 else
                 {

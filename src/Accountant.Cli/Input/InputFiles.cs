@@ -193,6 +193,7 @@ internal static class InputFiles
                     Stage = OptionalString(root, "stage", Where),
                     Adaptive = adaptive,
                     Guard = guard,
+                    Stream = OptionalString(root, "stream", Where),
                     TrainScore = train,
                 }, number));
             }

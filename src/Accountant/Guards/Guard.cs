@@ -2,10 +2,14 @@ using MathNet.Numerics;
 
 namespace Accountant.Guards;
 
-/// <summary>What a guard has done so far on one stream (one holdout, one guard spelling): releases, holdout answers, last value.</summary>
+/// <summary>What a guard has done so far on one stream: releases, holdout answers, last value released.</summary>
 public sealed record GuardState(int Releases, int HoldoutAnswers, double? LastReleased)
 {
     public static GuardState Empty { get; } = new(0, 0, null);
+
+    /// <summary>The state after one more release.</summary>
+    public GuardState After(Release release) =>
+        new(Releases + 1, HoldoutAnswers + (release.HoldoutAnswered ? 1 : 0), release.Value ?? LastReleased);
 }
 
 /// <summary>One release: the value told to the search (null when refused), and whether the holdout itself was used for it.</summary>
@@ -25,12 +29,13 @@ public static class Guard
     public const double ThresholdoutResolution = 0.001;
 
     /// <summary>
-    /// Releases <paramref name="score"/> under the guard. <paramref name="higherIsBetter"/> orients the Ladder;
-    /// Thresholdout needs the training-set score and draws its noise from <paramref name="random"/>; <paramref name="threshold"/>
-    /// carries its noisy threshold between calls in one process (pass null to draw a fresh one).
+    /// Releases <paramref name="score"/> under the guard, given what the stream released before (<paramref name="state"/>).
+    /// <paramref name="higherIsBetter"/> orients the Ladder; Thresholdout needs the training-set score and takes its noise
+    /// from <paramref name="noise"/> (a stream in the ledger uses <see cref="SeededGuardNoise"/>, so the release is a fixed
+    /// function of the stream's seed, its state and the scores; null draws from <see cref="Random.Shared"/>).
     /// </summary>
     public static Release Apply(GuardSpec spec, GuardState state, double score, ValueSpace space, bool higherIsBetter,
-        double? trainScore = null, Random? random = null, ThresholdoutNoise? threshold = null)
+        double? trainScore = null, IGuardNoise? noise = null)
     {
         switch (spec.Kind)
         {
@@ -48,11 +53,11 @@ public static class Guard
             }
 
             default:
-                return Thresholdout(spec, state, score, space, trainScore, random ?? Random.Shared, threshold);
+                return Thresholdout(spec, state, score, space, trainScore, noise ?? new SequentialGuardNoise(Random.Shared));
         }
     }
 
-    private static Release Thresholdout(GuardSpec spec, GuardState state, double score, ValueSpace space, double? trainScore, Random random, ThresholdoutNoise? threshold)
+    private static Release Thresholdout(GuardSpec spec, GuardState state, double score, ValueSpace space, double? trainScore, IGuardNoise noise)
     {
         if (trainScore is not { } train || !double.IsFinite(train))
         {
@@ -61,19 +66,17 @@ public static class Guard
 
         // arXiv 1506.02629, Fig. 1: γ ~ Lap(2σ) sets T̂ = T + γ; per query, if the budget is spent answer ⊥;
         // else η ~ Lap(4σ); if |E_holdout − E_train| > T̂ + η answer E_holdout + Lap(σ), spend one unit and draw a fresh γ;
-        // otherwise answer E_train.
+        // otherwise answer E_train. γ belongs to the epoch (the holdout answers so far), η and the answer's noise to the query.
         if (state.HoldoutAnswers >= spec.Budget)
         {
             return new Release(null, false);
         }
 
-        threshold ??= new ThresholdoutNoise();
-        threshold.Gamma ??= Laplace(random, 2 * spec.Sigma);
-        var eta = Laplace(random, 4 * spec.Sigma);
-        if (Math.Abs(score - train) > spec.Threshold + threshold.Gamma.Value + eta)
+        var gamma = noise.Threshold(state.HoldoutAnswers, 2 * spec.Sigma);
+        var eta = noise.Comparison(state.Releases, 4 * spec.Sigma);
+        if (Math.Abs(score - train) > spec.Threshold + gamma + eta)
         {
-            threshold.Gamma = null;
-            var noisy = score + Laplace(random, spec.Sigma);
+            var noisy = score + noise.Answer(state.Releases, spec.Sigma);
             var step = ThresholdoutResolution * space.Width;
             return new Release(OnGrid(space.Low + Math.Round((noisy - space.Low) / step) * step, space), true);
         }
@@ -87,8 +90,18 @@ public static class Guard
     public static double Laplace(Random random, double scale)
     {
         if (scale <= 0) return 0.0;
-        var u = random.NextDouble() - 0.5;
-        return -scale * Math.Sign(u) * Math.Log(1 - 2 * Math.Abs(u));
+        // NextDouble is in [0, 1); 0 itself would invert to an infinite draw, so it is drawn again.
+        double u;
+        do u = random.NextDouble(); while (u == 0);
+        return LaplaceOf(u, scale);
+    }
+
+    /// <summary>The Laplace(0, b) quantile of a uniform draw <paramref name="u"/> in (0, 1): −b·sign(v)·ln(1 − 2|v|), v = u − ½.</summary>
+    public static double LaplaceOf(double u, double scale)
+    {
+        if (scale <= 0) return 0.0;
+        var v = u - 0.5;
+        return -scale * Math.Sign(v) * Math.Log(1 - 2 * Math.Abs(v));
     }
 
     /// <summary>
@@ -153,10 +166,4 @@ public static class Guard
         var max = list.Max();
         return max + Math.Log(list.Sum(t => Math.Exp(t - max)));
     }
-}
-
-/// <summary>Thresholdout's noisy threshold γ, kept between queries within one process (a search or a simulation).</summary>
-public sealed class ThresholdoutNoise
-{
-    public double? Gamma { get; set; }
 }

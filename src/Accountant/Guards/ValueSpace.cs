@@ -15,6 +15,15 @@ public sealed record ValueSpace(double Low, double High, double LogExactValues)
 
     public static ValueSpace Bounded(double low, double high) => new(low, high, 64 * Math.Log(2.0));
 
+    /// <summary>The space of a holdout's scores: 0/1 metrics on its size, AUC on its positives and negatives, bounded losses on its range.</summary>
+    public static ValueSpace Of(Metric metric, int size, Bounds.LossRange range, Func<long> positives)
+    {
+        if (metric is Metric.Error or Metric.Accuracy) return ZeroOne(size);
+        if (metric != Metric.Auc) return Bounded(range.Low, range.High);
+        var p = positives();
+        return Auc(p, size - p);
+    }
+
     /// <summary>The number of points of a grid of the given step covering the range (conservatively rounded up).</summary>
     public double GridPoints(double step) => Math.Ceiling(Width / step - 1e-9) + 1;
 }

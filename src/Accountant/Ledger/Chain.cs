@@ -80,7 +80,26 @@ public static class Chain
             w.WriteString("released", release.Value is { } v ? Number(v) : null);
             w.WriteBoolean("holdoutAnswered", release.HoldoutAnswered);
             w.WriteString("trainScore", release.TrainScore is { } s ? Number(s) : null);
+            // Schema 4: the stream and the look's place in it, written only for looks on a declared stream.
+            if (release.Stream is not null)
+            {
+                w.WriteString("stream", release.Stream);
+                w.WriteNumber("streamIndex", release.Index ?? 0);
+                w.WriteNumber("streamAnswers", release.Answers ?? 0);
+            }
         }
+    });
+
+    /// <summary>Schema 4: a guard stream declared on a holdout, with the guard that releases on it and its noise seed.</summary>
+    public static byte[] StreamEntry(long sequence, string holdoutFingerprint, string name, string guard, ulong? seed, string createdAt) => Write(w =>
+    {
+        w.WriteString("kind", "stream");
+        w.WriteNumber("seq", sequence);
+        w.WriteString("holdout", holdoutFingerprint);
+        w.WriteString("name", name);
+        w.WriteString("guard", guard);
+        w.WriteString("seed", seed is { } s ? s.ToString(CultureInfo.InvariantCulture) : null);
+        w.WriteString("createdAt", createdAt);
     });
 
     public static byte[] OpeningEntry(long sequence, string holdoutFingerprint, int lookNumber, int testSize, string testFingerprint, double testScore, string recordedAt) => Write(w =>

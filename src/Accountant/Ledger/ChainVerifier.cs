@@ -1,4 +1,5 @@
 using Accountant.Bounds;
+using Accountant.Guards;
 
 namespace Accountant.Ledger;
 
@@ -6,12 +7,36 @@ namespace Accountant.Ledger;
 /// Recomputes the chain of any ledger from its typed rows, in entry order, and reports the first entry that does not
 /// match: a changed field, a missing or extra row, a reordered entry, a gap in look numbers, or a row that is in a table
 /// but not in the chain. Every backend is checked by this one class, through <see cref="ILedgerRows"/>.
+/// <para>
+/// It also replays every guard stream: each guarded look's release is recomputed from the stream's declaration (guard and
+/// noise seed), the releases before it and the look's own score, and must equal what was recorded (the Ladder, Blum &amp;
+/// Hardt 2015, arXiv 1502.04585, Alg. 1; Thresholdout, Dwork et al. 2015, arXiv 1506.02629, Fig. 1). Only Thresholdout
+/// releases recorded before streams were declared (schema 3 and older, whose noise was not kept) are taken as recorded.
+/// And it recounts each holdout's looks, adaptive looks and ln M_eff from the rows (<see cref="HoldoutRecount"/>).
+/// </para>
 /// </summary>
 public sealed class ChainVerifier(ILedgerRows rows)
 {
-    private sealed record HoldoutState(string Fingerprint, int Size, Metric Metric)
+    private sealed class HoldoutState(string name, string fingerprint, int size, Metric metric, ValueSpace space)
     {
+        public string Name { get; } = name;
+        public string Fingerprint { get; } = fingerprint;
+        public int Size { get; } = size;
+        public Metric Metric { get; } = metric;
+        public ValueSpace Space { get; } = space;
         public int LastLook { get; set; }
+        public Dictionary<string, StreamState> Streams { get; } = new(StringComparer.Ordinal);
+        public AdaptiveAccounting.EffectiveLooks Count { get; } = new(space);
+        public int Replayed { get; set; }
+        public int Unchecked { get; set; }
+    }
+
+    private sealed class StreamState(GuardSpec spec)
+    {
+        public GuardSpec Spec { get; } = spec;
+        public bool Declared { get; set; }
+        public SeededGuardNoise? Noise { get; set; }
+        public GuardState State { get; set; } = GuardState.Empty;
     }
 
     public ChainReport Run(string? expectedHead)
@@ -52,6 +77,7 @@ public sealed class ChainVerifier(ILedgerRows rows)
                         "look" => Look(chunk.Looks.GetValueOrDefault(sequence), sequence, holdouts),
                         "void" => Void(chunk.Voids.GetValueOrDefault(sequence), sequence, holdouts),
                         "opening" => Opening(chunk.Openings.GetValueOrDefault(sequence), sequence, holdouts),
+                        "stream" => Stream(chunk.Streams.GetValueOrDefault(sequence), sequence, holdouts),
                         _ => ([], $"entry {sequence} has an unknown kind '{entry.Kind}'"),
                     };
                 }
@@ -94,7 +120,10 @@ public sealed class ChainVerifier(ILedgerRows rows)
                 $"the chain does not contain the head {expectedHead}: it ends at entry {expected - 1}, so the ledger was truncated or rolled back to an older copy (entry {expected} onward is missing), or rewritten since that head was printed");
         }
 
-        return new ChainReport(true, expected - 1, head, null, null);
+        return new ChainReport(true, expected - 1, head, null, null)
+        {
+            Recounts = holdouts.Values.Select(h => new HoldoutRecount(h.Name, h.Count.Looks, h.Count.Adaptive, h.Count.LogValue, h.Streams.Count, h.Replayed, h.Unchecked)).ToList(),
+        };
     }
 
     private static ChainReport Bad(long entries, long at, string problem) => new(false, entries, null, at, problem);
@@ -128,7 +157,8 @@ public sealed class ChainVerifier(ILedgerRows rows)
             return ([], $"entry {sequence} (holdout '{r.Name}') was altered: its ids or labels no longer match its fingerprint");
         }
 
-        holdouts[r.Id] = new HoldoutState(r.Fingerprint, r.Size, metric.Value);
+        var space = ValueSpace.Of(metric.Value, r.Size, new LossRange(r.LossLow, r.LossHigh), () => labelList.Count(l => l == Losses.PositiveLabel));
+        holdouts[r.Id] = new HoldoutState(r.Name, r.Fingerprint, r.Size, metric.Value, space);
         return (Chain.HoldoutEntry(sequence, r.Name, r.Size, metric.Value, r.LossLow, r.LossHigh, r.Fingerprint, r.Ids, r.Labels, r.CreatedAt), null);
     }
 
@@ -173,8 +203,136 @@ public sealed class ChainVerifier(ILedgerRows rows)
             }
         }
 
+        var guard = GuardSpec.Exact;
+        if (r.Release is { } release)
+        {
+            var (spec, problem) = Replay(holdout, r, release, sequence);
+            if (problem is not null) return ([], problem);
+            guard = spec!;
+        }
+
+        holdout.Count.Add(new AccountedLook(r.Adaptive != 0, guard, r.Release?.Stream));
         return (Chain.LookEntry(sequence, holdout.Fingerprint, number, r.Configuration, r.ConfigurationDigest, r.Score, r.Adaptive != 0, encoding, r.Losses,
             r.Search, r.Stage, r.Seconds, r.RecordedAt, r.Release), null);
+    }
+
+    /// <summary>Recomputes a guarded look's release from its stream and compares it with what was recorded.</summary>
+    private static (GuardSpec?, string?) Replay(HoldoutState holdout, LookRow r, Released release, long sequence)
+    {
+        var where = $"entry {sequence} (look {r.Number})";
+        GuardSpec spec;
+        try
+        {
+            spec = GuardSpec.Parse(release.Guard);
+        }
+        catch (AccountantException)
+        {
+            return (null, $"{where} names an unknown guard '{release.Guard}'");
+        }
+
+        var name = release.StreamName;
+        holdout.Streams.TryGetValue(name, out var stream);
+        if (release.Stream is not null)
+        {
+            if (stream is not { Declared: true })
+            {
+                return (null, $"{where} is released on the guard stream '{name}', which is not declared before it");
+            }
+
+            if (release.Index != stream.State.Releases)
+            {
+                return (null, $"{where} is release {release.Index} of the guard stream '{name}', but the stream had {stream.State.Releases} releases before it: releases are missing or out of order");
+            }
+        }
+
+        stream ??= holdout.Streams[name] = new StreamState(spec);
+        if (stream.Spec.ToString() != spec.ToString())
+        {
+            return (null, $"{where} is released by {spec} on the guard stream '{name}', which belongs to {stream.Spec}");
+        }
+
+        Release expected;
+        if (spec.Kind != GuardKind.Thresholdout || stream.Noise is not null)
+        {
+            try
+            {
+                expected = Guard.Apply(spec, stream.State, r.Score, holdout.Space, holdout.Metric.HigherIsBetter(), release.TrainScore, stream.Noise);
+            }
+            catch (AccountantException)
+            {
+                return (null, $"{where} was released by {spec} without the training score that guard compares against");
+            }
+
+            if (expected.Value != release.Value || expected.HoldoutAnswered != release.HoldoutAnswered)
+            {
+                return (null, $"{where} was released as {Shown(release.Value, release.HoldoutAnswered)} on the guard stream '{name}', but replaying {spec} from the stream's earlier releases gives {Shown(expected.Value, expected.HoldoutAnswered)}: the release does not follow its guard's rule");
+            }
+
+            holdout.Replayed++;
+        }
+        else
+        {
+            // A Thresholdout release from before streams were declared: its noise was not kept, so it is taken as recorded.
+            expected = new Release(release.Value, release.HoldoutAnswered);
+            holdout.Unchecked++;
+        }
+
+        stream.State = stream.State.After(expected);
+        if (release.Stream is not null && release.Answers != stream.State.HoldoutAnswers)
+        {
+            return (null, $"{where} records {release.Answers} holdout answers on the guard stream '{name}', but the stream has given {stream.State.HoldoutAnswers}");
+        }
+
+        return (spec, null);
+    }
+
+    private static string Shown(double? value, bool holdoutAnswered) =>
+        (value is { } v ? Chain.Number(v) : "a refusal") + (holdoutAnswered ? " (from the holdout)" : " (not from the holdout)");
+
+    private static (byte[], string?) Stream(StreamRow? r, long sequence, Dictionary<long, HoldoutState> holdouts)
+    {
+        if (r is null)
+        {
+            return ([], $"entry {sequence} is a guard stream whose row was deleted");
+        }
+
+        if (!holdouts.TryGetValue(r.HoldoutId, out var holdout))
+        {
+            return ([], $"entry {sequence} declares a guard stream on a holdout that is not registered before it");
+        }
+
+        GuardSpec spec;
+        try
+        {
+            spec = GuardSpec.Parse(r.Guard);
+        }
+        catch (AccountantException)
+        {
+            return ([], $"entry {sequence} declares the guard stream '{r.Name}' with an unknown guard '{r.Guard}'");
+        }
+
+        if (holdout.Streams.TryGetValue(r.Name, out var stream))
+        {
+            if (stream.Declared) return ([], $"entry {sequence} declares the guard stream '{r.Name}' a second time");
+            if (stream.Spec.ToString() != spec.ToString())
+            {
+                return ([], $"entry {sequence} declares the guard stream '{r.Name}' for {spec}, but its earlier looks were released by {stream.Spec}");
+            }
+        }
+        else
+        {
+            holdout.Streams[r.Name] = stream = new StreamState(spec);
+        }
+
+        if (spec.Kind == GuardKind.Thresholdout && r.Seed is null)
+        {
+            return ([], $"entry {sequence} declares the thresholdout stream '{r.Name}' without the seed of its noise");
+        }
+
+        stream.Declared = true;
+        ulong? seed = r.Seed is { } stored ? unchecked((ulong)stored) : null;
+        stream.Noise = spec.Kind == GuardKind.Thresholdout ? new SeededGuardNoise(seed!.Value) : null;
+        return (Chain.StreamEntry(sequence, holdout.Fingerprint, r.Name, r.Guard, seed, r.CreatedAt), null);
     }
 
     private static (byte[], string?) Void(VoidRow? r, long sequence, Dictionary<long, HoldoutState> holdouts)

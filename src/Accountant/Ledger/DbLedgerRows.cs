@@ -58,13 +58,15 @@ internal sealed class DbLedgerRows(DbConnection connection, Func<DbTransaction>?
             Read("SELECT seq, id, name, size, metric, loss_low, loss_high, fingerprint, ids, labels, created_at FROM holdouts", first, last, chunk, r =>
                 chunk.Holdouts[r.GetInt64(0)] = new HoldoutRow(r.GetInt64(1), r.GetInt64(0), r.GetString(2), r.GetInt32(3), r.GetString(4), r.GetDouble(5), r.GetDouble(6),
                     r.GetString(7), (byte[])r.GetValue(8), (byte[])r.GetValue(9), r.GetString(10)));
-            Read("SELECT seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at, guard, released, holdout_answered, train_score FROM looks", first, last, chunk, r =>
+            Read("SELECT seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at, guard, released, holdout_answered, train_score, stream, stream_index, stream_answers FROM looks", first, last, chunk, r =>
                 chunk.Looks[r.GetInt64(0)] = new LookRow(r.GetInt64(0), r.GetInt64(1), r.GetInt32(2), r.GetString(3), r.GetString(4), r.GetDouble(5), r.GetInt32(6), r.GetInt32(7),
                     r.IsDBNull(8) ? null : (byte[])r.GetValue(8), Text(r, 9), Text(r, 10), Real(r, 11), r.GetString(12), ReadRelease(r, 13)));
             Read("SELECT seq, holdout_id, look_number, reason, recorded_at FROM voids", first, last, chunk, r =>
                 chunk.Voids[r.GetInt64(0)] = new VoidRow(r.GetInt64(0), r.GetInt64(1), r.GetInt32(2), r.GetString(3), r.GetString(4)));
             Read("SELECT seq, holdout_id, look_number, test_size, test_fingerprint, test_score, recorded_at FROM openings", first, last, chunk, r =>
                 chunk.Openings[r.GetInt64(0)] = new OpeningRow(r.GetInt64(0), r.GetInt64(1), r.GetInt32(2), r.GetInt32(3), r.GetString(4), r.GetDouble(5), r.GetString(6)));
+            Read("SELECT seq, holdout_id, name, guard, seed, created_at FROM guard_streams", first, last, chunk, r =>
+                chunk.Streams[r.GetInt64(0)] = new StreamRow(r.GetInt64(0), r.GetInt64(1), r.GetString(2), r.GetString(3), r.IsDBNull(4) ? null : r.GetInt64(4), r.GetString(5)));
             yield return chunk;
             after = last;
         }
@@ -77,7 +79,8 @@ internal sealed class DbLedgerRows(DbConnection connection, Func<DbTransaction>?
                 SELECT seq, 'holdout' AS kind FROM holdouts
                 UNION ALL SELECT seq, 'look' FROM looks
                 UNION ALL SELECT seq, 'void' FROM voids
-                UNION ALL SELECT seq, 'opening' FROM openings) AS t
+                UNION ALL SELECT seq, 'opening' FROM openings
+                UNION ALL SELECT seq, 'stream' FROM guard_streams) AS t
             LEFT JOIN entries AS e ON e.seq = t.seq
             WHERE e.seq IS NULL OR e.kind <> t.kind
             ORDER BY t.seq LIMIT 1;
@@ -86,14 +89,20 @@ internal sealed class DbLedgerRows(DbConnection connection, Func<DbTransaction>?
         return reader.Read() ? (reader.GetInt64(0), reader.GetString(1)) : null;
     }
 
-    /// <summary>Reads the four release columns starting at <paramref name="first"/>; null when the look had no guard.</summary>
+    /// <summary>Reads the seven release columns starting at <paramref name="first"/> (guard, released, holdout answered,
+    /// training score, stream, stream index, stream answers); null when the look had no guard.</summary>
     internal static Released? ReadRelease(DbDataReader reader, int first) => reader.IsDBNull(first)
         ? null
         : new Released(
             reader.GetString(first),
             reader.IsDBNull(first + 1) ? null : reader.GetDouble(first + 1),
             !reader.IsDBNull(first + 2) && reader.GetInt32(first + 2) != 0,
-            reader.IsDBNull(first + 3) ? null : reader.GetDouble(first + 3));
+            reader.IsDBNull(first + 3) ? null : reader.GetDouble(first + 3))
+        {
+            Stream = reader.IsDBNull(first + 4) ? null : reader.GetString(first + 4),
+            Index = reader.IsDBNull(first + 5) ? null : reader.GetInt32(first + 5),
+            Answers = reader.IsDBNull(first + 6) ? null : reader.GetInt32(first + 6),
+        };
 
     private static string? Text(DbDataReader r, int i) => r.IsDBNull(i) ? null : r.GetString(i);
 

@@ -157,7 +157,7 @@ internal sealed class DbPlanBoard(DbConnection connection, TimeProvider clock, B
         var finished = new List<FinishedTask>(tasks.Count);
         foreach (var t in tasks)
         {
-            using var command = Command("SELECT score, guard, released, holdout_answered, train_score FROM looks WHERE holdout_id = @id AND number = @number;",
+            using var command = Command("SELECT score, guard, released, holdout_answered, train_score, stream, stream_index, stream_answers FROM looks WHERE holdout_id = @id AND number = @number;",
                 ("@id", holdout.Key), ("@number", t.LookNumber!.Value));
             using var reader = command.ExecuteReader();
             if (!reader.Read())

@@ -23,7 +23,20 @@ public interface ILedgerStore : IDisposable
     IReadOnlyList<HoldoutExample> Examples(Holdout holdout);
 
     /// <summary>Appends looks in one transaction (all or none), numbering them after the holdout's last look.</summary>
-    IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks);
+    IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks) => AppendLooks(holdout, () => looks);
+
+    /// <summary>
+    /// Appends looks in one transaction (all or none). <paramref name="looks"/> is called inside the transaction once the
+    /// chain's write lock is held, so what it reads from this store (a guard stream's state, <see cref="FindGuardStream"/>)
+    /// cannot change before its looks are written: concurrent writers release on a stream one after the other, in chain
+    /// order. A look's <see cref="NewLook.Opens"/> stream is declared (an entry of its own) before the batch's looks. An
+    /// exception from the callback rolls everything back.
+    /// </summary>
+    IReadOnlyList<Look> AppendLooks(Holdout holdout, Func<IReadOnlyList<NewLook>> looks);
+
+    /// <summary>One guard stream's recorded state on the holdout (null when it was never used); inside a write transaction
+    /// it reads that transaction's view.</summary>
+    GuardStreamState? FindGuardStream(Holdout holdout, string name);
 
     LookVoid AppendVoid(Holdout holdout, int lookNumber, string reason);
 

@@ -13,7 +13,7 @@ internal static class LedgerReads
     private const string HoldoutColumns = "id, name, size, metric, loss_low, loss_high, fingerprint, created_at";
 
     /// <summary>The look columns <see cref="ReadLook"/> reads, in its order (the losses blob is not among them).</summary>
-    public const string LookColumns = "seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at, seconds, guard, released, holdout_answered, train_score";
+    public const string LookColumns = "seq, number, configuration, configuration_digest, score, loss_encoding, search, stage, adaptive, recorded_at, seconds, guard, released, holdout_answered, train_score, stream, stream_index, stream_answers";
 
     public static Holdout? FindHoldout(DbConnection connection, string name)
     {
@@ -111,21 +111,97 @@ internal static class LedgerReads
         return reader.Read() ? ReadLook(reader) : null;
     }
 
-    /// <summary>Every look's adaptive flag and guard, in number order: what adaptive accounting needs, and no more.</summary>
+    /// <summary>Every look's adaptive flag, guard and stream, in number order: what adaptive accounting needs, and no more.</summary>
     public static List<Guards.AccountedLook> AdaptivePattern(DbConnection connection, Holdout holdout, int looks)
     {
         var pattern = new List<Guards.AccountedLook>(looks);
         var specs = new Dictionary<string, Guards.GuardSpec>(StringComparer.Ordinal);
-        using var command = Command(connection, "SELECT adaptive, guard FROM looks WHERE holdout_id = @id ORDER BY number;", ("@id", holdout.Key));
+        using var command = Command(connection, "SELECT adaptive, guard, stream FROM looks WHERE holdout_id = @id ORDER BY number;", ("@id", holdout.Key));
         using var reader = command.ExecuteReader();
         while (reader.Read())
         {
             var guard = reader.IsDBNull(1) ? Guards.GuardSpec.Exact
                 : specs.TryGetValue(reader.GetString(1), out var known) ? known : specs[reader.GetString(1)] = Guards.GuardSpec.Parse(reader.GetString(1));
-            pattern.Add(new Guards.AccountedLook(reader.GetInt32(0) != 0, guard));
+            pattern.Add(new Guards.AccountedLook(reader.GetInt32(0) != 0, guard, reader.IsDBNull(2) ? null : reader.GetString(2)));
         }
 
         return pattern;
+    }
+
+    /// <summary>
+    /// One guard stream's recorded state, read in the caller's transaction (a writer holds the chain's lock, so no other
+    /// writer can move it meanwhile): its declaration, and from the stream's latest look its release count, holdout answers
+    /// and last released value, each an index lookup (<c>looks_by_stream</c>). A stream used only before streams were
+    /// declared (schema 3 and older, named by its guard's spelling) is counted from those looks. Null when never used.
+    /// </summary>
+    public static GuardStreamState? FindGuardStream(DbConnection connection, Holdout holdout, string name)
+    {
+        GuardStream? declared = null;
+        using (var command = Command(connection, "SELECT seq, guard, seed FROM guard_streams WHERE holdout_id = @id AND name = @name;", ("@id", holdout.Key), ("@name", name)))
+        using (var reader = command.ExecuteReader())
+        {
+            if (reader.Read())
+            {
+                declared = new GuardStream(name, Guards.GuardSpec.Parse(reader.GetString(1)), reader.IsDBNull(2) ? null : unchecked((ulong)reader.GetInt64(2))) { Sequence = reader.GetInt64(0) };
+            }
+        }
+
+        int releases, answers;
+        double? last;
+        using (var command = Command(connection, "SELECT stream_index, stream_answers, released FROM looks WHERE holdout_id = @id AND stream = @name ORDER BY number DESC LIMIT 1;", ("@id", holdout.Key), ("@name", name)))
+        using (var reader = command.ExecuteReader())
+        {
+            if (reader.Read())
+            {
+                releases = reader.GetInt32(0) + 1;
+                answers = reader.GetInt32(1);
+                last = reader.IsDBNull(2) ? null : reader.GetDouble(2);
+            }
+            else
+            {
+                releases = -1;
+                answers = 0;
+                last = null;
+            }
+        }
+
+        if (releases >= 0)
+        {
+            last ??= LastReleased(connection, holdout, "stream = @name", name) ?? LastReleased(connection, holdout, "stream IS NULL AND guard = @name", name);
+        }
+        else
+        {
+            // No look on the declared stream yet: what looks of an older schema released under this guard spelling, if any.
+            using var command = Command(connection, "SELECT count(*), COALESCE(sum(holdout_answered), 0) FROM looks WHERE holdout_id = @id AND stream IS NULL AND guard = @name;", ("@id", holdout.Key), ("@name", name));
+            using var reader = command.ExecuteReader();
+            reader.Read();
+            releases = Convert.ToInt32(reader.GetValue(0), System.Globalization.CultureInfo.InvariantCulture);
+            answers = Convert.ToInt32(reader.GetValue(1), System.Globalization.CultureInfo.InvariantCulture);
+            reader.Close();
+            last = releases > 0 ? LastReleased(connection, holdout, "stream IS NULL AND guard = @name", name) : null;
+        }
+
+        if (declared is null && releases == 0) return null;
+        var guard = declared?.Guard ?? Guards.GuardSpec.Parse(name);
+        return new GuardStreamState(name, declared, new Guards.GuardState(releases, answers, last), guard);
+    }
+
+    /// <summary>The streams a batch of looks opens, each once, in the order of the looks that open them.</summary>
+    public static List<GuardStream> StreamsOpened(IReadOnlyList<NewLook> looks)
+    {
+        var opened = new List<GuardStream>();
+        foreach (var look in looks)
+        {
+            if (look.Opens is { } open && !opened.Exists(o => o.Name == open.Name)) opened.Add(open);
+        }
+
+        return opened;
+    }
+
+    private static double? LastReleased(DbConnection connection, Holdout holdout, string where, string name)
+    {
+        using var command = Command(connection, $"SELECT released FROM looks WHERE holdout_id = @id AND {where} AND released IS NOT NULL ORDER BY number DESC LIMIT 1;", ("@id", holdout.Key), ("@name", name));
+        return command.ExecuteScalar() is double value ? value : null;
     }
 
     public static IReadOnlyList<LookVoid> Voids(DbConnection connection, Holdout holdout)

@@ -13,6 +13,9 @@ public sealed record LookRow(long Sequence, long HoldoutId, int Number, string C
 
 public sealed record VoidRow(long Sequence, long HoldoutId, int LookNumber, string Reason, string RecordedAt);
 
+/// <summary>A guard stream row as stored (schema 4); the seed is the stored 64-bit integer, read as unsigned.</summary>
+public sealed record StreamRow(long Sequence, long HoldoutId, string Name, string Guard, long? Seed, string CreatedAt);
+
 public sealed record OpeningRow(long Sequence, long HoldoutId, int LookNumber, int TestSize, string TestFingerprint, double TestScore, string RecordedAt);
 
 /// <summary>
@@ -26,12 +29,13 @@ public sealed class LedgerChunk
     public Dictionary<long, LookRow> Looks { get; } = [];
     public Dictionary<long, VoidRow> Voids { get; } = [];
     public Dictionary<long, OpeningRow> Openings { get; } = [];
+    public Dictionary<long, StreamRow> Streams { get; } = [];
     public HashSet<long> Damaged { get; } = [];
 
     /// <summary>The entry numbers of the typed rows in this chunk, for finding rows that are in a table but not in the chain.</summary>
     public IEnumerable<(long Sequence, string Kind)> TypedRows() =>
         Holdouts.Keys.Select(s => (s, "holdout")).Concat(Looks.Keys.Select(s => (s, "look")))
-            .Concat(Voids.Keys.Select(s => (s, "void"))).Concat(Openings.Keys.Select(s => (s, "opening")));
+            .Concat(Voids.Keys.Select(s => (s, "void"))).Concat(Openings.Keys.Select(s => (s, "opening"))).Concat(Streams.Keys.Select(s => (s, "stream")));
 }
 
 /// <summary>

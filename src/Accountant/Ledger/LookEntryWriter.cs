@@ -19,7 +19,7 @@ internal static class LookEntryWriter
         double score, bool adaptive, LossEncoding encoding, byte[]? losses, string? search, string? stage, double? seconds, string recordedAt, Released? release)
     {
         var most = 512 + 2 * (holdoutFingerprint.Length + configuration.Length + configurationDigest.Length + recordedAt.Length
-            + (search?.Length ?? 0) + (stage?.Length ?? 0) + (release?.Guard.Length ?? 0));
+            + (search?.Length ?? 0) + (stage?.Length ?? 0) + (release?.Guard.Length ?? 0) + (release?.Stream?.Length ?? 0));
         var buffer = t_buffer is { } reused && reused.Length >= most ? reused : t_buffer = new byte[Math.Max(most, 1024)];
         var w = new Cursor(buffer);
         w.Raw("{\"v\":1,\"kind\":\"look\",\"seq\":"u8);
@@ -44,6 +44,14 @@ internal static class LookEntryWriter
             w.Number(",\"released\":"u8, release.Value);
             w.Raw(release.HoldoutAnswered ? ",\"holdoutAnswered\":true"u8 : ",\"holdoutAnswered\":false"u8);
             w.Number(",\"trainScore\":"u8, release.TrainScore);
+            if (release.Stream is not null)
+            {
+                if (!w.Text(",\"stream\":"u8, release.Stream)) return null;
+                w.Raw(",\"streamIndex\":"u8);
+                w.Integer(release.Index ?? 0);
+                w.Raw(",\"streamAnswers\":"u8);
+                w.Integer(release.Answers ?? 0);
+            }
         }
 
         w.Raw("}"u8);

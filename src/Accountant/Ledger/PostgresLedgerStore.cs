@@ -110,6 +110,8 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
         {
             throw new AccountantException(ErrorKind.LedgerUnusable, $"the ledger at {Location} has schema version {version}, newer than the {SchemaVersion} this accountant understands; upgrade the accountant tool to read it (nothing was changed).");
         }
+
+        if (version < SchemaVersion) Upgrade(version);
     }
 
     /// <summary>
@@ -133,17 +135,53 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
         }
 
         Execute(Ddl);
-        foreach (var table in new[] { "entries", "holdouts", "looks", "voids", "openings" })
-        {
-            Execute($"""
-                CREATE TRIGGER {table}_append_only BEFORE UPDATE OR DELETE ON {table} FOR EACH ROW EXECUTE FUNCTION ledger_append_only();
-                CREATE TRIGGER {table}_no_truncate BEFORE TRUNCATE ON {table} FOR EACH STATEMENT EXECUTE FUNCTION ledger_append_only();
-                """);
-        }
+        foreach (var table in new[] { "entries", "holdouts", "looks", "voids", "openings", "guard_streams" }) AppendOnly(table);
 
         using (var meta = Command("INSERT INTO ledger_meta (key, value) VALUES ('application', @application), ('schema_version', @version);"))
         {
             meta.Parameters.AddWithValue("application", Application);
+            meta.Parameters.AddWithValue("version", SchemaVersion.ToString(CultureInfo.InvariantCulture));
+            meta.ExecuteNonQuery();
+        }
+
+        transaction.Commit();
+    }
+
+    private void AppendOnly(string table) => Execute($"""
+        CREATE TRIGGER {table}_append_only BEFORE UPDATE OR DELETE ON {table} FOR EACH ROW EXECUTE FUNCTION ledger_append_only();
+        CREATE TRIGGER {table}_no_truncate BEFORE TRUNCATE ON {table} FOR EACH STATEMENT EXECUTE FUNCTION ledger_append_only();
+        """);
+
+    /// <summary>
+    /// Upgrades a ledger of an older schema in place, in one transaction holding the chain lock (so no writer appends
+    /// meanwhile). Tables and columns are only added; old entries keep their canonical form, so the chain verifies as before.
+    /// Schema 4 added guard streams (see <see cref="SqliteLedgerStore.SchemaVersion"/>).
+    /// </summary>
+    private void Upgrade(int from)
+    {
+        using var transaction = BeginWrite();
+        var current = int.Parse((string)Scalar("SELECT value FROM ledger_meta WHERE key = 'schema_version';")!, CultureInfo.InvariantCulture);
+        if (current == from && current < 4)
+        {
+            Execute("""
+                ALTER TABLE looks ADD COLUMN stream text, ADD COLUMN stream_index integer, ADD COLUMN stream_answers integer;
+                CREATE TABLE guard_streams (
+                    seq         bigint PRIMARY KEY,
+                    holdout_id  bigint NOT NULL,
+                    name        text NOT NULL,
+                    guard       text NOT NULL,
+                    seed        bigint,
+                    created_at  text NOT NULL,
+                    UNIQUE (holdout_id, name)
+                );
+                CREATE INDEX looks_by_stream ON looks (holdout_id, stream, number) WHERE stream IS NOT NULL;
+                """);
+            AppendOnly("guard_streams");
+        }
+
+        if (current == from)
+        {
+            using var meta = Command("UPDATE ledger_meta SET value = @version WHERE key = 'schema_version';");
             meta.Parameters.AddWithValue("version", SchemaVersion.ToString(CultureInfo.InvariantCulture));
             meta.ExecuteNonQuery();
         }
@@ -192,6 +230,9 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
             released             double precision,
             holdout_answered     integer,
             train_score          double precision,
+            stream               text,
+            stream_index         integer,
+            stream_answers       integer,
             UNIQUE (holdout_id, number)
         );
         ALTER TABLE looks ALTER COLUMN losses SET STORAGE EXTERNAL;
@@ -212,6 +253,16 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
             recorded_at      text NOT NULL
         );
         CREATE INDEX looks_by_score ON looks (holdout_id, score, number, adaptive, loss_encoding);
+        CREATE TABLE guard_streams (
+            seq         bigint PRIMARY KEY,
+            holdout_id  bigint NOT NULL,
+            name        text NOT NULL,
+            guard       text NOT NULL,
+            seed        bigint,
+            created_at  text NOT NULL,
+            UNIQUE (holdout_id, name)
+        );
+        CREATE INDEX looks_by_stream ON looks (holdout_id, stream, number) WHERE stream IS NOT NULL;
         CREATE FUNCTION ledger_append_only() RETURNS trigger LANGUAGE plpgsql AS $body$
         BEGIN
             RAISE EXCEPTION 'the ledger is append-only';
@@ -275,17 +326,40 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
     /// <summary>Batches at least this large go in by binary COPY; smaller ones by prepared inserts.</summary>
     private const int CopyBatch = 16;
 
-    public IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks) => Guarded(() =>
+    public IReadOnlyList<Look> AppendLooks(Holdout holdout, Func<IReadOnlyList<NewLook>> looks) => Guarded(() =>
     {
         using var transaction = BeginWrite();
-        var written = AppendLooksInTransaction(holdout, looks);
+        var written = AppendLooksInTransaction(holdout, looks());
         transaction.Commit();
         return written;
     });
 
-    /// <summary>The work of <see cref="AppendLooks"/> inside a write transaction (holding the chain lock) the caller began and will commit.</summary>
+    public GuardStreamState? FindGuardStream(Holdout holdout, string name) => Guarded(() => LedgerReads.FindGuardStream(_connection, holdout, name));
+
+    /// <summary>Declares the streams the looks open, each an entry of its own, in the caller's write transaction.</summary>
+    private void OpenStreams(Holdout holdout, IReadOnlyList<NewLook> looks)
+    {
+        foreach (var open in LedgerReads.StreamsOpened(looks))
+        {
+            var created = Chain.Timestamp(_clock.GetUtcNow());
+            var (sequence, previous) = Tail();
+            var canonical = Chain.StreamEntry(sequence, holdout.Fingerprint, open.Name, open.Guard.ToString(), open.Seed, created);
+            var insert = new NpgsqlBatchCommand("INSERT INTO guard_streams (seq, holdout_id, name, guard, seed, created_at) VALUES (@seq, @id, @name, @guard, @seed, @created);");
+            insert.Parameters.Add(new NpgsqlParameter<long>("seq", sequence));
+            insert.Parameters.Add(new NpgsqlParameter<long>("id", holdout.Key));
+            insert.Parameters.Add(new NpgsqlParameter<string>("name", open.Name));
+            insert.Parameters.Add(new NpgsqlParameter<string>("guard", open.Guard.ToString()));
+            insert.Parameters.Add(Nullable("seed", open.Seed is { } seed ? unchecked((long)seed) : null, NpgsqlDbType.Bigint));
+            insert.Parameters.Add(new NpgsqlParameter<string>("created", created));
+            using var batch = new NpgsqlBatch(_connection) { BatchCommands = { EntryInsert(sequence, "stream", previous, Chain.Link(previous, canonical)), insert } };
+            batch.ExecuteNonQuery();
+        }
+    }
+
+    /// <summary>The work of <see cref="AppendLooks(Holdout, Func{IReadOnlyList{NewLook}})"/> inside a write transaction (holding the chain lock) the caller began and will commit.</summary>
     private List<Look> AppendLooksInTransaction(Holdout holdout, IReadOnlyList<NewLook> looks)
     {
+        OpenStreams(holdout, looks);
         // The holdout's last look number and the chain's tail in one round trip.
         int number;
         long sequence;
@@ -387,6 +461,9 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
                 WriteOrNull(writer, look.Release?.Value, NpgsqlDbType.Double);
                 WriteOrNull<int>(writer, look.Release is { } r ? (r.HoldoutAnswered ? 1 : 0) : null, NpgsqlDbType.Integer);
                 WriteOrNull(writer, look.Release?.TrainScore, NpgsqlDbType.Double);
+                WriteOrNull(writer, look.Release?.Stream, NpgsqlDbType.Text);
+                WriteOrNull(writer, look.Release?.Index, NpgsqlDbType.Integer);
+                WriteOrNull(writer, look.Release?.Answers, NpgsqlDbType.Integer);
             }
 
             writer.Complete();
@@ -405,13 +482,13 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
         else writer.WriteNull();
     }
 
-    private const string LookInsertColumns = "seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at, guard, released, holdout_answered, train_score";
+    private const string LookInsertColumns = "seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at, guard, released, holdout_answered, train_score, stream, stream_index, stream_answers";
 
     private static NpgsqlBatchCommand LookInsert(long holdoutKey, long sequence, int number, NewLook look, string digest, string recorded)
     {
         var insert = new NpgsqlBatchCommand($"""
             INSERT INTO looks ({LookInsertColumns})
-            VALUES (@seq, @holdout, @number, @configuration, @digest, @score, @adaptive, @encoding, @losses, @search, @stage, @seconds, @recorded, @guard, @released, @answered, @train);
+            VALUES (@seq, @holdout, @number, @configuration, @digest, @score, @adaptive, @encoding, @losses, @search, @stage, @seconds, @recorded, @guard, @released, @answered, @train, @stream, @index, @answers);
             """);
         var p = insert.Parameters;
         p.Add(new NpgsqlParameter<long>("seq", sequence));
@@ -431,6 +508,9 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
         p.Add(Nullable("released", look.Release?.Value, NpgsqlDbType.Double));
         p.Add(Nullable("answered", look.Release is { } r ? (r.HoldoutAnswered ? 1 : 0) : null, NpgsqlDbType.Integer));
         p.Add(Nullable("train", look.Release?.TrainScore, NpgsqlDbType.Double));
+        p.Add(Nullable("stream", look.Release?.Stream, NpgsqlDbType.Text));
+        p.Add(Nullable("index", look.Release?.Index, NpgsqlDbType.Integer));
+        p.Add(Nullable("answers", look.Release?.Answers, NpgsqlDbType.Integer));
         return insert;
     }
 

@@ -15,8 +15,9 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
 {
     /// <summary>The schema version this build writes (PRAGMA user_version).</summary>
     /// <remarks>Version 2 added how a look was released (guard, released value, holdout answered, training score);
-    /// version 3 added openings of sealed test sets.</remarks>
-    public const int SchemaVersion = 3;
+    /// version 3 added openings of sealed test sets; version 4 added guard streams (declared in the chain with their guard
+    /// and noise seed) and each guarded look's stream, index in it and the stream's holdout answers after it.</remarks>
+    public const int SchemaVersion = 4;
 
     /// <summary>PRAGMA application_id: the bytes "ACNT".</summary>
     public const int ApplicationId = 0x41434E54;
@@ -202,6 +203,7 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
         {
             if (current < 2) Execute(_connection, V2Columns);
             if (current < 3) Execute(_connection, V3Openings);
+            if (current < 4) Execute(_connection, V4Streams);
             Execute(_connection, $"PRAGMA user_version = {SchemaVersion};");
         }
 
@@ -227,6 +229,29 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
         );
         CREATE TRIGGER openings_no_update BEFORE UPDATE ON openings BEGIN SELECT RAISE(ABORT, 'the ledger is append-only'); END;
         CREATE TRIGGER openings_no_delete BEFORE DELETE ON openings BEGIN SELECT RAISE(ABORT, 'the ledger is append-only'); END;
+        """;
+
+    /// <summary>
+    /// Schema 4: guard streams. A stream is declared by an entry of its own before its first look; every look released on it
+    /// records the stream, its index in it and the stream's holdout answers so far, so a writer reads a stream's state from
+    /// its latest look (one lookup in <c>looks_by_stream</c>) inside its write transaction.
+    /// </summary>
+    internal const string V4Streams = """
+        CREATE TABLE guard_streams (
+            seq         INTEGER PRIMARY KEY,
+            holdout_id  INTEGER NOT NULL,
+            name        TEXT NOT NULL,
+            guard       TEXT NOT NULL,
+            seed        INTEGER,
+            created_at  TEXT NOT NULL,
+            UNIQUE (holdout_id, name)
+        );
+        CREATE TRIGGER guard_streams_no_update BEFORE UPDATE ON guard_streams BEGIN SELECT RAISE(ABORT, 'the ledger is append-only'); END;
+        CREATE TRIGGER guard_streams_no_delete BEFORE DELETE ON guard_streams BEGIN SELECT RAISE(ABORT, 'the ledger is append-only'); END;
+        ALTER TABLE looks ADD COLUMN stream TEXT;
+        ALTER TABLE looks ADD COLUMN stream_index INTEGER;
+        ALTER TABLE looks ADD COLUMN stream_answers INTEGER;
+        CREATE INDEX looks_by_stream ON looks (holdout_id, stream, number) WHERE stream IS NOT NULL;
         """;
 
     private void Initialize()
@@ -289,7 +314,7 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
         }
 
         // A new ledger is built as version 1 and then taken through every upgrade, so new and upgraded ledgers are alike.
-        Execute(_connection, V2Columns + V3Openings + $"PRAGMA user_version = {SchemaVersion};");
+        Execute(_connection, V2Columns + V3Openings + V4Streams + $"PRAGMA user_version = {SchemaVersion};");
         transaction.Commit();
     }
 
@@ -336,17 +361,40 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
 
     public IReadOnlyList<HoldoutExample> Examples(Holdout holdout) => Guarded(() => LedgerReads.Examples(_connection, holdout));
 
-    public IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks) => Guarded(() =>
+    public IReadOnlyList<Look> AppendLooks(Holdout holdout, Func<IReadOnlyList<NewLook>> looks) => Guarded(() =>
     {
         using var transaction = _connection.BeginTransaction(deferred: false);
-        var written = AppendLooksInTransaction(holdout, looks);
+        var written = AppendLooksInTransaction(holdout, looks());
         transaction.Commit();
         return written;
     });
 
-    /// <summary>The work of <see cref="AppendLooks"/> inside a write transaction the caller began and will commit.</summary>
+    public GuardStreamState? FindGuardStream(Holdout holdout, string name) => Guarded(() => LedgerReads.FindGuardStream(_connection, holdout, name));
+
+    /// <summary>Declares the streams the looks open, each an entry of its own, in the caller's write transaction.</summary>
+    private void OpenStreams(Holdout holdout, IReadOnlyList<NewLook> looks)
+    {
+        foreach (var open in LedgerReads.StreamsOpened(looks))
+        {
+            var created = Chain.Timestamp(_clock.GetUtcNow());
+            var (sequence, previous) = Tail();
+            var canonical = Chain.StreamEntry(sequence, holdout.Fingerprint, open.Name, open.Guard.ToString(), open.Seed, created);
+            InsertEntry(sequence, "stream", previous, Chain.Link(previous, canonical));
+            using var command = Command("INSERT INTO guard_streams (seq, holdout_id, name, guard, seed, created_at) VALUES ($seq, $id, $name, $guard, $seed, $created);");
+            command.Parameters.AddWithValue("$seq", sequence);
+            command.Parameters.AddWithValue("$id", holdout.Key);
+            command.Parameters.AddWithValue("$name", open.Name);
+            command.Parameters.AddWithValue("$guard", open.Guard.ToString());
+            command.Parameters.AddWithValue("$seed", open.Seed is { } seed ? unchecked((long)seed) : DBNull.Value);
+            command.Parameters.AddWithValue("$created", created);
+            command.ExecuteNonQuery();
+        }
+    }
+
+    /// <summary>The work of <see cref="AppendLooks(Holdout, Func{IReadOnlyList{NewLook}})"/> inside a write transaction the caller began and will commit.</summary>
     private List<Look> AppendLooksInTransaction(Holdout holdout, IReadOnlyList<NewLook> looks)
     {
+        OpenStreams(holdout, looks);
         var number = Convert.ToInt32(ScalarWith("SELECT COALESCE(MAX(number), 0) FROM looks WHERE holdout_id = $id;", ("$id", holdout.Key)), CultureInfo.InvariantCulture);
         var (sequence, previous) = Tail();
         var recorded = Chain.Timestamp(_clock.GetUtcNow());
@@ -354,16 +402,17 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
         var written = new List<Look>(looks.Count);
         using var insert = Command("""
             INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, search, stage, seconds, recorded_at,
-                               guard, released, holdout_answered, train_score)
+                               guard, released, holdout_answered, train_score, stream, stream_index, stream_answers)
             VALUES ($seq, $holdout, $number, $configuration, $digest, $score, $adaptive, $encoding, $losses, $search, $stage, $seconds, $recorded,
-                    $guard, $released, $answered, $train);
+                    $guard, $released, $answered, $train, $stream, $index, $answers);
             """);
         // Bound with their column's own type, so SQLite stores them without converting text to numbers.
         // (Names and types in two arrays rather than tuples: no generic code over a tuple is compiled at run time for one record.)
         string[] names = ["$seq", "$holdout", "$number", "$configuration", "$digest", "$score", "$adaptive", "$encoding", "$losses", "$search", "$stage", "$seconds", "$recorded",
-            "$guard", "$released", "$answered", "$train"];
+            "$guard", "$released", "$answered", "$train", "$stream", "$index", "$answers"];
         SqliteType[] types = [SqliteType.Integer, SqliteType.Integer, SqliteType.Integer, SqliteType.Text, SqliteType.Text, SqliteType.Real, SqliteType.Integer, SqliteType.Integer,
-            SqliteType.Blob, SqliteType.Text, SqliteType.Text, SqliteType.Real, SqliteType.Text, SqliteType.Text, SqliteType.Real, SqliteType.Integer, SqliteType.Real];
+            SqliteType.Blob, SqliteType.Text, SqliteType.Text, SqliteType.Real, SqliteType.Text, SqliteType.Text, SqliteType.Real, SqliteType.Integer, SqliteType.Real,
+            SqliteType.Text, SqliteType.Integer, SqliteType.Integer];
         var parameters = new SqliteParameter[names.Length];
         for (var p = 0; p < names.Length; p++) parameters[p] = insert.Parameters.Add(names[p], types[p]);
         insert.Prepare();
@@ -373,7 +422,7 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
             INSERT INTO looks (seq, holdout_id, number, configuration, configuration_digest, score, adaptive, loss_encoding, losses, recorded_at)
             VALUES ($seq, $holdout, $number, $configuration, $digest, $score, $adaptive, $encoding, $losses, $recorded);
             """);
-        var plainParameters = parameters.Where(p => p.ParameterName is not ("$search" or "$stage" or "$seconds" or "$guard" or "$released" or "$answered" or "$train"))
+        var plainParameters = parameters.Where(p => p.ParameterName is not ("$search" or "$stage" or "$seconds" or "$guard" or "$released" or "$answered" or "$train" or "$stream" or "$index" or "$answers"))
             .Select(p => plain.Parameters.Add(p.ParameterName, p.SqliteType)).ToArray();
         plain.Prepare();
         using var entry = Command("INSERT INTO entries (seq, kind, prev_hash, hash) VALUES ($seq, 'look', $prev, $hash);");
@@ -425,6 +474,11 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
                 parameters[15].Value = look.Release is { } r ? (r.HoldoutAnswered ? 1 : 0) : DBNull.Value;
                 parameters[16].SqliteType = SqliteType.Real;
                 parameters[16].Value = (object?)look.Release?.TrainScore ?? DBNull.Value;
+                parameters[17].Value = (object?)look.Release?.Stream ?? DBNull.Value;
+                parameters[18].SqliteType = SqliteType.Integer;
+                parameters[18].Value = (object?)look.Release?.Index ?? DBNull.Value;
+                parameters[19].SqliteType = SqliteType.Integer;
+                parameters[19].Value = (object?)look.Release?.Answers ?? DBNull.Value;
                 insert.ExecuteNonQuery();
             }
 

@@ -406,12 +406,12 @@ public static class SearchSimulator
     private sealed class GuardRunner(GuardSpec spec, ValueSpace space, FastRandom random)
     {
         private GuardState _state = GuardState.Empty;
-        private readonly ThresholdoutNoise _noise = new();
+        private readonly SequentialGuardNoise _noise = new(random);
 
         public double? Release(double score, double trainScore)
         {
-            var release = Guard.Apply(spec, _state, score, space, higherIsBetter: false, trainScore, random, _noise);
-            _state = new GuardState(_state.Releases + 1, _state.HoldoutAnswers + (release.HoldoutAnswered ? 1 : 0), release.Value ?? _state.LastReleased);
+            var release = Guard.Apply(spec, _state, score, space, higherIsBetter: false, trainScore, _noise);
+            _state = _state.After(release);
             return release.Value;
         }
     }

@@ -32,7 +32,7 @@ public static class StatementBuilder
     }
 
     /// <summary>How the adaptive accounting sees a look: its flag and the guard its value went through (exact when none).</summary>
-    public static AccountedLook Accounted(Look look) => new(look.Adaptive, look.Release is { } r ? GuardSpec.Parse(r.Guard) : GuardSpec.Exact);
+    public static AccountedLook Accounted(Look look) => new(look.Adaptive, look.Release is { } r ? GuardSpec.Parse(r.Guard) : GuardSpec.Exact, look.Release?.Stream);
 
     /// <summary>The same statement from the counts alone, so that a ledger of a million looks need not be read look by look.</summary>
     public static Statement Build(Holdout holdout, LookTally tally, IReadOnlyList<LookVoid> voids, string? chainHead,

@@ -106,11 +106,12 @@ public class GuardTests
         Assert.True(far.HoldoutAnswered);
         Assert.True(Guard.Apply(spec, new GuardState(5, 2, 0.3), 0.5, Unit, false, trainScore: 0.1).Refused);
         Assert.Throws<AccountantException>(() => Guard.Apply(spec, GuardState.Empty, 0.5, Unit, false));
-        // Seeded noise is reproducible.
+        // Seeded noise is reproducible: the same seed and state give the same release, another seed (almost surely) another.
         var noisy = GuardSpec.Thresholdout(0.04, 0.01, 10);
-        var a = Guard.Apply(noisy, GuardState.Empty, 0.4, Unit, false, 0.1, new Random(3));
-        var b = Guard.Apply(noisy, GuardState.Empty, 0.4, Unit, false, 0.1, new Random(3));
+        var a = Guard.Apply(noisy, GuardState.Empty, 0.4, Unit, false, 0.1, new SeededGuardNoise(3));
+        var b = Guard.Apply(noisy, GuardState.Empty, 0.4, Unit, false, 0.1, new SeededGuardNoise(3));
         Assert.Equal(a, b);
+        Assert.NotEqual(a.Value, Guard.Apply(noisy, GuardState.Empty, 0.4, Unit, false, 0.1, new SeededGuardNoise(4)).Value);
         // Counting: Σ_{i ≤ min(B, j)} C(j, i)·V^i with V = 1001 grid values.
         Assert.Equal(Math.Log(1 + 3 * 1001.0 + 3 * 1001.0 * 1001.0), Guard.LogCount(spec, 3, Unit), 9);
     }
@@ -123,6 +124,39 @@ public class GuardTests
         var draws = Enumerable.Range(0, 200_000).Select(_ => Guard.Laplace(random, 0.5)).ToArray();
         Assert.Equal(0.0, draws.Average(), 5 * 0.5 * Math.Sqrt(2.0 / draws.Length));
         Assert.Equal(0.5, draws.Average(Math.Abs), 5 * 0.5 / Math.Sqrt(draws.Length));
+    }
+
+    [Fact]
+    public void Seeded_noise_is_laplace_distributed_and_independent_across_addresses()
+    {
+        // Each address (kind, index) of a seeded stream is one Laplace draw. Kolmogorov–Smirnov against MathNet's Laplace
+        // CDF (a general-purpose reference): with 20,000 draws the 0.1% critical value of D is c/sqrt(n), c = sqrt(−ln(0.001/2)/2)
+        // = 1.9495 (the leading term of the Kolmogorov distribution's tail, 2·exp(−2c²); arithmetic).
+        const int n = 20_000;
+        var noise = new SeededGuardNoise(0x5EED);
+        var laplace = new MathNet.Numerics.Distributions.Laplace(0, 0.5);
+        foreach (var draws in new[]
+        {
+            Enumerable.Range(0, n).Select(i => noise.Comparison(i, 0.5)).ToArray(),
+            Enumerable.Range(0, n).Select(i => noise.Answer(i, 0.5)).ToArray(),
+            Enumerable.Range(0, n).Select(i => noise.Threshold(i, 0.5)).ToArray(),
+        })
+        {
+            var sorted = draws.OrderBy(d => d).ToArray();
+            var d = sorted.Select((x, i) => Math.Max(Math.Abs(laplace.CumulativeDistribution(x) - i / (double)n), Math.Abs(laplace.CumulativeDistribution(x) - (i + 1) / (double)n))).Max();
+            Assert.True(d < 1.95 / Math.Sqrt(n), $"KS distance {d}");
+        }
+
+        // Draws for different purposes at the same index, and at neighbouring indices, are uncorrelated: |r| < 4/sqrt(n)
+        // (the sample correlation of independent draws has standard error 1/sqrt(n)).
+        var eta = Enumerable.Range(0, n).Select(i => noise.Comparison(i, 1)).ToArray();
+        var answer = Enumerable.Range(0, n).Select(i => noise.Answer(i, 1)).ToArray();
+        var next = Enumerable.Range(1, n).Select(i => noise.Comparison(i, 1)).ToArray();
+        Assert.True(Math.Abs(MathNet.Numerics.Statistics.Correlation.Pearson(eta, answer)) < 4 / Math.Sqrt(n));
+        Assert.True(Math.Abs(MathNet.Numerics.Statistics.Correlation.Pearson(eta, next)) < 4 / Math.Sqrt(n));
+        // The same address always gives the same draw; another seed gives other draws.
+        Assert.Equal(eta, Enumerable.Range(0, n).Select(i => new SeededGuardNoise(0x5EED).Comparison(i, 1)));
+        Assert.NotEqual(eta[0], new SeededGuardNoise(0x5EEE).Comparison(0, 1));
     }
 
     [Theory]

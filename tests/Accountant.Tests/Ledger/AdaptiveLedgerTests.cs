@@ -88,7 +88,7 @@ public abstract class AdaptiveLedgerContract(Backend backend) : IDisposable
 }
 
 /// <summary>The SQLite ledger: the shared tests, and upgrades of older SQLite schemas (PostgreSQL ledgers start at schema 3).</summary>
-public sealed class AdaptiveLedgerTests() : AdaptiveLedgerContract(Backend.Sqlite)
+public sealed partial class AdaptiveLedgerTests() : AdaptiveLedgerContract(Backend.Sqlite)
 {
     [Fact]
     public void A_schema_1_ledger_is_upgraded_in_place_with_its_chain_intact()
@@ -104,12 +104,12 @@ public sealed class AdaptiveLedgerTests() : AdaptiveLedgerContract(Backend.Sqlit
             head = book.Store.ChainHead()!;
         }
 
-        // Make it a schema-1 file: drop the columns schema 2 added.
+        // Make it a schema-1 file: drop what schemas 4, 3 and 2 added.
         using (var connection = new SqliteConnection($"Data Source={_temp.Path};Pooling=False"))
         {
             connection.Open();
             using var command = connection.CreateCommand();
-            command.CommandText = """
+            command.CommandText = SchemaThreeSql + """
                 ALTER TABLE looks DROP COLUMN guard; ALTER TABLE looks DROP COLUMN released;
                 ALTER TABLE looks DROP COLUMN holdout_answered; ALTER TABLE looks DROP COLUMN train_score;
                 DROP TRIGGER openings_no_update; DROP TRIGGER openings_no_delete; DROP TABLE openings;
@@ -134,6 +134,16 @@ public sealed class AdaptiveLedgerTests() : AdaptiveLedgerContract(Backend.Sqlit
         upgraded.RecordMany("validation", [new LookInput { Configuration = "{}", Score = 0.1, Guard = GuardSpec.Exact, Adaptive = true }]);
         Assert.True(upgraded.Verify().Valid);
     }
+}
+
+public sealed partial class AdaptiveLedgerTests
+{
+    /// <summary>Turns a schema-4 SQLite ledger into a schema-3 one: drops the guard streams and the looks' stream columns.</summary>
+    internal const string SchemaThreeSql = """
+        DROP INDEX looks_by_stream; ALTER TABLE looks DROP COLUMN stream; ALTER TABLE looks DROP COLUMN stream_index; ALTER TABLE looks DROP COLUMN stream_answers;
+        DROP TRIGGER guard_streams_no_update; DROP TRIGGER guard_streams_no_delete; DROP TABLE guard_streams;
+        PRAGMA user_version = 3;
+        """;
 }
 
 internal static class StatementBuilderTestsNames

@@ -51,13 +51,19 @@ public sealed class BatchChainTests : IDisposable
         var inputs = Inputs(3 * LookChain.Ahead + 5, size);
         using var batch = Bookkeeper.Create(_batch.Path, new StoppedClock());
         using var single = Bookkeeper.Create(_single.Path, new StoppedClock());
-        foreach (var book in new[] { batch, single }) book.RegisterHoldout("v", TempLedger.Examples(size));
+        foreach (var book in new[] { batch, single })
+        {
+            book.RegisterHoldout("v", TempLedger.Examples(size));
+            // The guarded inputs release on the 'exact' stream: declare it on both ledgers first, so that neither the batch
+            // (which declares the streams it opens before its looks) nor the single looks add a stream entry.
+            book.RecordMany("v", [new LookInput { Configuration = "{}", Score = 0.5, Guard = GuardSpec.Exact }]);
+        }
 
         batch.RecordMany("v", inputs);
         foreach (var input in inputs) single.RecordMany("v", [input]);
 
         var (a, b) = (batch.Store.Looks(batch.Holdout("v")), single.Store.Looks(single.Holdout("v")));
-        Assert.Equal(inputs.Count, a.Count);
+        Assert.Equal(inputs.Count + 1, a.Count);
         Assert.Equal(b, a);
         for (var i = 0; i < a.Count; i++) Assert.Equal(single.Store.LossBytes(single.Holdout("v"), i + 1), batch.Store.LossBytes(batch.Holdout("v"), i + 1));
         Assert.Equal(single.Store.ChainHead(), batch.Store.ChainHead());
@@ -65,7 +71,7 @@ public sealed class BatchChainTests : IDisposable
         {
             var report = book.Verify();
             Assert.True(report.Valid, report.Problem);
-            Assert.Equal(inputs.Count + 1, report.Entries);
+            Assert.Equal(inputs.Count + 3, report.Entries);
         }
     }
 

@@ -15,6 +15,8 @@ public class ForwardingStore(ILedgerStore inner) : ILedgerStore
     public IReadOnlyList<Holdout> Holdouts() => inner.Holdouts();
     public IReadOnlyList<HoldoutExample> Examples(Holdout holdout) => inner.Examples(holdout);
     public IReadOnlyList<Look> AppendLooks(Holdout holdout, IReadOnlyList<NewLook> looks) => inner.AppendLooks(holdout, looks);
+    public IReadOnlyList<Look> AppendLooks(Holdout holdout, Func<IReadOnlyList<NewLook>> looks) => inner.AppendLooks(holdout, looks);
+    public GuardStreamState? FindGuardStream(Holdout holdout, string name) => inner.FindGuardStream(holdout, name);
     public LookVoid AppendVoid(Holdout holdout, int lookNumber, string reason) => inner.AppendVoid(holdout, lookNumber, reason);
     public TestOpening AppendOpening(Holdout holdout, int lookNumber, int testSize, string testFingerprint, double testScore) => inner.AppendOpening(holdout, lookNumber, testSize, testFingerprint, testScore);
     public IReadOnlyList<TestOpening> Openings(Holdout holdout) => inner.Openings(holdout);
