@@ -326,11 +326,7 @@ public sealed partial class Bookkeeper : IDisposable
         if (!streams.TryGetValue(name, out var stream))
         {
             var recorded = Store.FindGuardStream(holdout, name);
-            if (recorded is not null && recorded.Guard.ToString() != guard.ToString())
-            {
-                throw AccountantException.BadArguments($"the guard stream '{name}' on holdout '{holdout.Name}' releases by {recorded.Guard}, not {guard}; give --guard {recorded.Guard} for it, or name a new stream with --stream NAME.");
-            }
-
+            if (recorded is not null) CheckStreamGuard(holdout, name, recorded.Guard, guard);
             if (recorded?.Declared is { Seed: { } declaredSeed } && GuardSeed is { } wanted && wanted != declaredSeed && guard.Kind == GuardKind.Thresholdout)
             {
                 throw AccountantException.BadArguments($"the guard stream '{name}' on holdout '{holdout.Name}' draws its noise from seed {declaredSeed}, not {wanted}; leave out --seed (or give {declaredSeed}) to continue it, or name a new stream with --stream NAME.");
@@ -338,6 +334,10 @@ public sealed partial class Bookkeeper : IDisposable
 
             var declaration = recorded?.Declared ?? new GuardStream(name, guard, guard.Kind == GuardKind.Thresholdout ? GuardSeed ?? NewSeed() : null);
             streams[name] = stream = new OpenStream(declaration, recorded?.State ?? GuardState.Empty, recorded?.Declared is not null);
+        }
+        else
+        {
+            CheckStreamGuard(holdout, name, stream.Stream.Guard, guard);
         }
 
         var release = Guard.Apply(guard, stream.State, look.Score, Space(holdout, ref examples), holdout.Metric.HigherIsBetter(), input.TrainScore, stream.Noise);
@@ -350,6 +350,14 @@ public sealed partial class Bookkeeper : IDisposable
             Release = new Released(guard.ToString(), release.Value, release.HoldoutAnswered, input.TrainScore) { Stream = name, Index = index, Answers = stream.State.HoldoutAnswers },
             Opens = opens,
         };
+    }
+
+    private static void CheckStreamGuard(Holdout holdout, string name, GuardSpec streams, GuardSpec given)
+    {
+        if (streams.ToString() != given.ToString())
+        {
+            throw AccountantException.BadArguments($"the guard stream '{name}' on holdout '{holdout.Name}' releases by {streams}, not {given}; give --guard {streams} for it, or name a new stream with --stream NAME.");
+        }
     }
 
     private static ulong NewSeed() => BitConverter.ToUInt64(System.Security.Cryptography.RandomNumberGenerator.GetBytes(8));

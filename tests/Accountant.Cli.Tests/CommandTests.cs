@@ -350,6 +350,41 @@ public sealed class AdaptiveCommandTests : IDisposable
     }
 
     [Fact]
+    public void Named_guard_streams_keep_their_guard_and_seed_and_verify_replays_them()
+    {
+        _cli.Run("init");
+        _cli.Run("holdout", "add", "validation", "--labels", _cli.Labels(1000));
+        var first = _cli.Run("record", "validation", "--configuration", "{\"a\":1}", "--score", "0.30", "--guard", "ladder:0.01", "--stream", "tuning", "--adaptive");
+        Assert.Equal("look 1 on holdout 'validation' (adaptive): released 0.3000 by ladder:0.01 on stream 'tuning'", first.Out.Trim());
+        var noisy = _cli.Run("record", "validation", "--configuration", "{\"a\":2}", "--score", "0.30", "--guard", "thresholdout:0.02,0.01,5", "--train-score", "0.1", "--stream", "noisy", "--seed", "42", "--format", "json");
+        Assert.Equal(ExitCodes.Success, noisy.Exit);
+        Assert.Equal("noisy", System.Text.Json.JsonDocument.Parse(noisy.Out).RootElement.GetProperty("stream").GetString());
+        var head = System.Text.Json.JsonDocument.Parse(_cli.Run("verify", "--format", "json").Out).RootElement.GetProperty("chainHead").GetString();
+
+        // Another guard on the stream, or another seed: one line, exit 2, nothing written.
+        foreach (var (args, words) in new[]
+        {
+            (new[] { "--guard", "ladder:0.02", "--stream", "tuning" }, "the guard stream 'tuning' on holdout 'validation' releases by ladder:0.01, not ladder:0.02; give --guard ladder:0.01 for it, or name a new stream with --stream NAME."),
+            (new[] { "--guard", "thresholdout:0.02,0.01,5", "--train-score", "0.1", "--stream", "noisy", "--seed", "43" }, "draws its noise from seed 42, not 43"),
+            (new[] { "--stream", "tuning" }, "needs its guard; give --guard SPEC with --stream."),
+        })
+        {
+            var refused = _cli.Run(["record", "validation", "--configuration", "{\"a\":3}", "--score", "0.2", .. args]);
+            Assert.Equal(ExitCodes.BadArguments, refused.Exit);
+            Assert.Single(refused.Err.Trim().Split('\n'));
+            Assert.Contains(words, refused.Err);
+        }
+
+        var verify = _cli.Run("verify", "--format", "json");
+        var root = System.Text.Json.JsonDocument.Parse(verify.Out).RootElement;
+        Assert.Equal(head, root.GetProperty("chainHead").GetString());
+        var recount = root.GetProperty("holdouts")[0];
+        Assert.Equal((2, 2, 2), (recount.GetProperty("looks").GetInt32(), recount.GetProperty("guardStreams").GetInt32(), recount.GetProperty("releasesReplayed").GetInt32()));
+        Assert.Contains("holdout 'validation': 2 look(s), 1 adaptive, ln M_eff", _cli.Run("verify").Out);
+        Assert.Contains("2 guarded release(s) on 2 stream(s) replayed and as recorded", _cli.Run("verify").Out);
+    }
+
+    [Fact]
     public void Auc_holdouts_take_scores_as_predictions()
     {
         _cli.Run("init");

@@ -243,7 +243,7 @@ public sealed class EnvironmentFaultTests(ITestOutputHelper output) : IDisposabl
         {
             connection.Open();
             using var command = connection.CreateCommand();
-            command.CommandText = "PRAGMA user_version = 4;";
+            command.CommandText = $"PRAGMA user_version = {Accountant.Ledger.SqliteLedgerStore.SchemaVersion + 1};";
             command.ExecuteNonQuery();
         }
 
