@@ -85,6 +85,9 @@ public sealed class PostgresCliTests : IDisposable
     public void Copy_round_trips_sqlite_to_postgresql_to_sqlite_with_the_same_chain_head_and_statement()
     {
         Populate(_cli.Ledger);
+        // A guard stream too (its declaration is an entry of its own), continued on the copy below.
+        Assert.Equal(0, _cli.Run("record", "validation", "--configuration", """{"leaves":3}""", "--score", "0.3", "--guard", "thresholdout:0.02,0.01,3",
+            "--train-score", "0.1", "--stream", "noisy", "--seed", "9", "--adaptive").Exit);
         var head = Head(_cli.Ledger);
         var statement = _cli.Run("statement", "validation", "--format", "markdown").Out;
 
@@ -100,13 +103,18 @@ public sealed class PostgresCliTests : IDisposable
         Assert.True(again.Exit == 0, again.Err);
         using var json = JsonDocument.Parse(again.Out);
         Assert.Equal(head, json.RootElement.GetProperty("chainHead").GetString());
-        Assert.Equal(9, json.RootElement.GetProperty("entries").GetInt32()); // a holdout, seven looks and a void
+        Assert.Equal(11, json.RootElement.GetProperty("entries").GetInt32()); // a holdout, seven looks, a void, a stream and its look
         Assert.Equal(head, Head(back));
         Assert.Equal(statement, _cli.Run("statement", "validation", "--format", "markdown", "--ledger", back).Out);
 
         // The copy is a ledger like any other: a look recorded on it extends the chain, which still verifies.
         Assert.Equal(0, _cli.Run("record", "validation", "--configuration", "{}", "--score", "0.4", "--ledger", address).Exit);
+        var continued = _cli.Run("record", "validation", "--configuration", """{"leaves":4}""", "--score", "0.3", "--guard", "thresholdout:0.02,0.01,3",
+            "--train-score", "0.1", "--stream", "noisy", "--adaptive", "--format", "json", "--ledger", address);
+        Assert.True(continued.Exit == 0, continued.Err);
         Assert.NotEqual(head, Head(address));
+        using var verify = JsonDocument.Parse(_cli.Run("verify", "--format", "json", "--ledger", address).Out);
+        Assert.Equal(2, verify.RootElement.GetProperty("holdouts")[0].GetProperty("releasesReplayed").GetInt32());
     }
 
     [Fact]

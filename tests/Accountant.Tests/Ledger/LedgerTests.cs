@@ -318,6 +318,44 @@ public abstract class LedgerTests(Backend backend) : IDisposable
         Assert.False(string.IsNullOrEmpty(report.Problem));
     }
 
+    /// <summary>A ledger with guard streams: holdout (1); stream 'noisy' (2) and its look (3); stream 'ladder:0.05' (4) and two looks (5, 6).</summary>
+    private void PopulateStreams()
+    {
+        var (book, _) = WithHoldout();
+        using (book)
+        {
+            book.GuardSeed = 5;
+            book.RecordMany("validation", [new LookInput { Configuration = "{}", Score = 0.3, Guard = Accountant.Guards.GuardSpec.Thresholdout(0.02, 0.01, 5), TrainScore = 0.1, Stream = "noisy", Adaptive = true }]);
+            book.RecordMany("validation", [new LookInput { Configuration = """{"a":1}""", Score = 0.4, Guard = Accountant.Guards.GuardSpec.Ladder(0.05) }]);
+            book.RecordMany("validation", [new LookInput { Configuration = """{"a":2}""", Score = 0.3, Guard = Accountant.Guards.GuardSpec.Ladder(0.05), Adaptive = true }]);
+        }
+    }
+
+    public static TheoryData<string, string, long> StreamTampering() => new()
+    {
+        { "change a stream's seed", "UPDATE guard_streams SET seed = 6 WHERE name = 'noisy';", 2 },
+        { "change a stream's guard", "UPDATE guard_streams SET guard = 'thresholdout:0.03,0.01,5' WHERE name = 'noisy';", 2 },
+        { "delete a stream row", "DELETE FROM guard_streams WHERE name = 'noisy';", 2 },
+        { "delete a stream with its entry", "DELETE FROM guard_streams WHERE name = 'noisy'; DELETE FROM entries WHERE seq = 2;", 2 },
+        { "move a look to another stream", "UPDATE looks SET stream = 'noisy' WHERE number = 3;", 6 },
+        { "change a look's place in its stream", "UPDATE looks SET stream_index = 0 WHERE number = 3;", 6 },
+        { "change a released value", "UPDATE looks SET released = 0.25 WHERE number = 3;", 6 },
+    };
+
+    [Theory]
+    [MemberData(nameof(StreamTampering))]
+    public void Verify_detects_edits_of_guard_streams(string what, string sql, long firstBad)
+    {
+        PopulateStreams();
+        using (var book = _temp.Open()) Assert.True(book.Verify().Valid);
+        _temp.Tamper(sql, sql);
+        using var reopened = _temp.Open();
+        var report = reopened.Verify();
+        Assert.False(report.Valid, what);
+        Assert.Equal(firstBad, report.FirstBadEntry);
+        Assert.False(string.IsNullOrEmpty(report.Problem));
+    }
+
     [Fact]
     public void Truncating_the_tail_is_detected_against_a_printed_head()
     {

@@ -54,7 +54,7 @@ public sealed class TempLedger : IDisposable
         using var connection = new SqliteConnection($"Data Source={Path};Pooling=False");
         connection.Open();
         using var command = connection.CreateCommand();
-        var drop = string.Join("", new[] { "entries", "holdouts", "looks", "voids", "openings" }.Select(t => $"DROP TRIGGER IF EXISTS {t}_no_update; DROP TRIGGER IF EXISTS {t}_no_delete;"));
+        var drop = string.Join("", new[] { "entries", "holdouts", "looks", "voids", "openings", "guard_streams" }.Select(t => $"DROP TRIGGER IF EXISTS {t}_no_update; DROP TRIGGER IF EXISTS {t}_no_delete;"));
         command.CommandText = drop + sqliteSql;
         command.ExecuteNonQuery();
     }
