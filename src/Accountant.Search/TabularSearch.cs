@@ -38,6 +38,27 @@ public sealed record TabularSearchOptions
     public string? Share { get; init; }
     /// <summary>How long a shared worker's claim lasts unless renewed; the worker renews it every third of this while it trains.</summary>
     public TimeSpan Lease { get; init; } = TimeSpan.FromMinutes(2);
+
+    /// <summary>Rows made in memory in place of <see cref="DataPath"/>'s file (the demo's invented days); <see cref="DataPath"/> then only names them.</summary>
+    public RowSource? Rows { get; init; }
+
+    /// <summary>Validation rows made in memory in place of <see cref="ValidationPath"/>'s file.</summary>
+    public RowSource? ValidationRows { get; init; }
+
+    /// <summary>The label grouping this search's looks in the ledger; by default search-STRATEGY-seedSEED (the share name in a shared search).</summary>
+    public string? SearchLabel { get; init; }
+
+    /// <summary>With <see cref="Share"/>: only the closing step, saving the selected model of a shared search whose tasks are all done.</summary>
+    public bool Finish { get; init; }
+
+    internal RowSource Data => Rows ?? RowSource.File(DataPath);
+
+    internal RowSource? Validation => ValidationRows ?? (ValidationPath is null ? null : RowSource.File(ValidationPath));
+
+    internal RowSource? Test => TestPath is null ? null : RowSource.File(TestPath);
+
+    /// <summary>Whether every source is a file, so that the sealed test set can be rebuilt from the record later.</summary>
+    internal bool FromFiles => Rows is null && ValidationRows is null;
 }
 
 /// <summary>What a search did, and where it left the selected model.</summary>
@@ -51,14 +72,45 @@ public sealed record TabularSearchOutcome(
     /// <summary>This worker's name in a shared search; null otherwise.</summary>
     public string? SharedWorker { get; init; }
 
-    /// <summary>In a shared search, the worker whose look was selected (it saves the selected model); null otherwise.</summary>
+    /// <summary>In a shared search, the worker whose look was selected; null otherwise.</summary>
     public string? SelectedBy { get; init; }
+
+    /// <summary>In a shared search, the worker that saved the selected model and its record; null while none has.</summary>
+    public string? SavedBy { get; init; }
+
+    /// <summary>In a shared search, where the record unseal reads was written (on <see cref="SavedBy"/>'s machine).</summary>
+    public string? SavedAt { get; init; }
+
+    /// <summary>The selected look's model when this process holds it (it trained that look, or retrained it to save it); null otherwise.</summary>
+    public SelectedModel? Selected { get; init; }
+}
+
+/// <summary>The selected look's model, with what it needs to score further rows (the featurizer fitted on the training rows).</summary>
+public sealed class SelectedModel
+{
+    private readonly MLContext _ml;
+    private readonly TabularSearch.Fitted _fitted;
+
+    internal SelectedModel(MLContext ml, TabularSearch.Fitted fitted, ITransformer model, int look) => (_ml, _fitted, Model, Look) = (ml, fitted, model, look);
+
+    public ITransformer Model { get; }
+
+    /// <summary>The number of the look this model was scored as.</summary>
+    public int Look { get; }
+
+    /// <summary>
+    /// The model's score on other rows with the same columns, in the holdout's metric (error for classification, absolute
+    /// error clipped to the holdout's loss range for regression), and how many rows were scored.
+    /// </summary>
+    public (double Score, int Rows) Score(RowSource rows) => _fitted.Score(_ml, Model, rows);
 }
 
 /// <summary>
-/// A hyperparameter search on the user's own CSV: split (or separate files), featurize on the training rows only, register
-/// the validation rows as the holdout, try configurations by a strategy, record every look (every stage of halving too),
-/// and keep the selected model with a record of how to rebuild its sealed test set.
+/// A hyperparameter search on rows of the user's (a CSV file) or rows made in memory (the demo's invented days): split (or
+/// separate files), featurize on the training rows only, register the validation rows as the holdout, try configurations by
+/// a strategy, record every look (every stage of halving too), and keep the selected model with a record of how to rebuild
+/// its sealed test set. This is the one runner: the demo, a search of one's own and a shared worker all train, predict,
+/// record and keep the best through it.
 /// </summary>
 public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
 {
@@ -83,14 +135,20 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
     public TabularSearchOutcome Run(TabularSearchOptions options, IProgress<SearchProgress>? progress = null, Action<string>? note = null, CancellationToken cancel = default)
     {
         if (options.Looks < 1) throw AccountantException.BadArguments("--looks must be at least 1.");
+        if (options.Share is not null && !options.FromFiles)
+        {
+            throw AccountantException.BadArguments("a shared search reads its rows from a file every worker has; rows made in memory cannot be shared.");
+        }
+
+        CheckFinish(options);
         var prepared = Prepared.Load(options, note);
         var task = prepared.Task;
         var space = options.SpacePath is { } spacePath ? SpaceFile.Read(spacePath, task) : TrainerCatalog.DefaultSpace(task);
         var name = options.HoldoutName ?? DefaultHoldoutName(options.DataPath);
         if (options.Share is not null) return RunShared(options, prepared, space, name, progress, note, cancel);
         var holdout = book.EnsureHoldout(name, prepared.ValidationExamples(), prepared.Metric, prepared.LossRange);
-        var views = new Views(_ml, prepared);
-        var runner = new Runner(_ml, book, holdout, prepared, views, options.Guard, $"search-{options.Strategy}-seed{options.Seed}");
+        var fitted = new Fitted(_ml, prepared);
+        var runner = new Runner(book, holdout, fitted, options.Guard, options.SearchLabel ?? $"search-{options.Strategy}-seed{options.Seed}", options.Seed);
         var outcome = options.Strategy switch
         {
             "halving" => runner.Halving(space, options.Looks, options.Seed, progress, cancel),
@@ -100,35 +158,54 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             _ => throw AccountantException.BadArguments($"unknown strategy '{options.Strategy}'; use random, grid, refine or halving."),
         };
 
-        return Finish(options, prepared, views, runner, holdout, outcome);
-    }
-
-    /// <summary>The statement, and the selected model with its record when this process trained the selected look.</summary>
-    private TabularSearchOutcome Finish(TabularSearchOptions options, Prepared prepared, Views views, Runner runner, Holdout holdout, SearchOutcome outcome)
-    {
-        var task = prepared.Task;
         var statement = book.Statement(holdout.Name, options.Statement);
-        var modelPath = options.ModelPath ?? Path.Combine(Folder, Safe(holdout.Name) + ".model.zip");
-        var recordPath = Path.Combine(Folder, Safe(holdout.Name) + ".search.json");
-        var saved = false;
-        if (statement.Best is { } best && runner.Models.TryGetValue(best.Number, out var model))
+        ITransformer? model = null;
+        if (statement.Best is { } best && !runner.Models.TryGetValue(best.Number, out model) && best.Stage is null && !outcome.Cancelled)
         {
-            saved = true;
-            _ml.Model.Save(model, views.Training.Schema, modelPath);
-            var record = new SearchRecord
-            {
-                DataPath = Path.GetFullPath(options.DataPath), Label = options.Label, Task = task.ToString().ToLowerInvariant(), Ignore = [.. options.Ignore],
-                IdColumn = options.IdColumn, Seed = options.Seed, ValidationFraction = options.ValidationFraction, TestFraction = options.TestFraction,
-                ValidationPath = options.ValidationPath is null ? null : Path.GetFullPath(options.ValidationPath),
-                TestPath = options.TestPath is null ? null : Path.GetFullPath(options.TestPath),
-                Holdout = holdout.Name, Look = best.Number, Configuration = best.Configuration, ModelPath = Path.GetFullPath(modelPath),
-                Featurizer = prepared.Featurizer, Classes = prepared.Classes, TestRows = prepared.TestRows.Count,
-            };
-            File.WriteAllText(recordPath, JsonSerializer.Serialize(record, SearchRecord.JsonOptions));
+            // The selected look was recorded by an earlier search on this holdout: its model is this search's only if this
+            // search's rows retrain it to exactly the per-example losses it recorded.
+            note?.Invoke($"the selected look #{best.Number} was recorded before this search; retraining its configuration to check that this search's rows reproduce it");
+            var trained = runner.Train(TrainerConfiguration.FromJson(best.Configuration), best.Adaptive, 1.0, null);
+            model = runner.Reproduces(trained, best) ? trained.Model : null;
+            if (model is null) note?.Invoke($"this search's rows do not reproduce look #{best.Number} (it was trained on other rows or settings), so no model is saved");
         }
 
-        return new TabularSearchOutcome(statement, outcome, task, options.Task is null, modelPath, recordPath,
-            prepared.TrainingRows.Count, prepared.ValidationRows.Count, prepared.TestRows.Count) { ModelSaved = saved };
+        var selected = model is null ? null : new SelectedModel(_ml, fitted, model, statement.Best!.Number);
+        var (modelPath, recordPath) = Paths(options, holdout.Name);
+        // Rows made in memory cannot be rebuilt from a record, so only a search of files leaves one (and its model).
+        var saved = selected is not null && options.FromFiles;
+        if (saved) Save(options, fitted, holdout.Name, statement.Best!, selected!.Model, modelPath, recordPath);
+        return Outcome(options, fitted, statement, outcome, modelPath, recordPath) with { ModelSaved = saved, Selected = selected };
+    }
+
+    private (string Model, string Record) Paths(TabularSearchOptions options, string holdout) =>
+        (options.ModelPath ?? Path.Combine(Folder, Safe(holdout) + ".model.zip"), Path.Combine(Folder, Safe(holdout) + ".search.json"));
+
+    private static TabularSearchOutcome Outcome(TabularSearchOptions options, Fitted fitted, Statement statement, SearchOutcome search, string modelPath, string recordPath) =>
+        new(statement, search, fitted.P.Task, options.Task is null, modelPath, recordPath,
+            fitted.P.TrainingRows.Count, fitted.P.ValidationRows.Count, fitted.P.TestRows.Count);
+
+    /// <summary>
+    /// Writes the selected model and the record unseal reads. Each file is written under a temporary name and moved into
+    /// place, so a reader (or a second writer of the same files) never sees half of one.
+    /// </summary>
+    private void Save(TabularSearchOptions options, Fitted fitted, string holdout, Look best, ITransformer model, string modelPath, string recordPath)
+    {
+        var p = fitted.P;
+        var record = new SearchRecord
+        {
+            DataPath = Path.GetFullPath(options.DataPath), Label = options.Label, Task = p.Task.ToString().ToLowerInvariant(), Ignore = [.. options.Ignore],
+            IdColumn = options.IdColumn, Seed = options.Seed, ValidationFraction = options.ValidationFraction, TestFraction = options.TestFraction,
+            ValidationPath = options.ValidationPath is null ? null : Path.GetFullPath(options.ValidationPath),
+            TestPath = options.TestPath is null ? null : Path.GetFullPath(options.TestPath),
+            Holdout = holdout, Look = best.Number, Configuration = best.Configuration, ModelPath = Path.GetFullPath(modelPath),
+            Featurizer = p.Featurizer, Classes = p.Classes, TestRows = p.TestRows.Count,
+        };
+        var partial = $".{Environment.ProcessId}-{Guid.NewGuid():N}.part";
+        _ml.Model.Save(model, fitted.Views.Training.Schema, modelPath + partial);
+        File.Move(modelPath + partial, modelPath, overwrite: true);
+        File.WriteAllText(recordPath + partial, JsonSerializer.Serialize(record, SearchRecord.JsonOptions));
+        File.Move(recordPath + partial, recordPath, overwrite: true);
     }
 
     /// <summary>Scores the selected model on the sealed test rows, once, and returns the test score and the number of test examples.</summary>
@@ -157,9 +234,10 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             throw AccountantException.BadInput($"the selected model '{record.ModelPath}' cannot be loaded ({e.Message.TrimEnd('.')}); rerun the search to save it again.");
         }
 
-        var view = new Views(_ml, prepared).Build(prepared.TestRows);
-        var predictions = Runner.Predict(_ml, prepared, model, view, prepared.TestRows);
-        var examples = prepared.TestRows.Select(r => new HoldoutExample(prepared.Data(r).Id(prepared.Row(r)), prepared.Data(r).Label(prepared.Row(r)))).ToList();
+        var fitted = new Fitted(_ml, prepared);
+        var predicted = Fitted.Predict(prepared, model, fitted.Views.Build(prepared.At(prepared.TestRows)));
+        var examples = prepared.TestRows.Select(r => new HoldoutExample(prepared.Data(r).Id(r.Row), prepared.Data(r).Label(r.Row))).ToList();
+        var predictions = examples.Select((e, i) => new Prediction(e.Id, predicted[i])).ToList();
         var sorted = examples.OrderBy(e => e.Id, StringComparer.Ordinal).ToList();
         var stand = holdout with { Size = sorted.Count };
         var losses = Losses.Compute(stand, sorted, predictions);
@@ -167,8 +245,9 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
     }
 
     /// <summary>Everything read and split, ready for training.</summary>
-    private sealed class Prepared
+    internal sealed class Prepared
     {
+        public required TabularSearchOptions Options { get; init; }
         public required TabularData Main { get; init; }
         public TabularData? ValidationFile { get; init; }
         public TabularData? TestFile { get; init; }
@@ -184,16 +263,16 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
 
         public TabularData Data((int File, int Row) r) => r.File switch { 1 => ValidationFile!, 2 => TestFile!, _ => Main };
 
-        public int Row((int File, int Row) r) => r.Row;
+        public IEnumerable<(TabularData Data, int Row)> At(IEnumerable<(int File, int Row)> rows) => rows.Select(r => (Data(r), r.Row));
 
         public List<HoldoutExample> ValidationExamples() =>
             ValidationRows.Select(r => new HoldoutExample(Data(r).Id(r.Row), Data(r).Label(r.Row))).ToList();
 
         public static Prepared Load(TabularSearchOptions o, Action<string>? note, Featurizer? fitted = null)
         {
-            var main = TabularData.Load(o.DataPath, o.Label, o.Ignore, o.IdColumn);
-            var validation = o.ValidationPath is null ? null : TabularData.Load(o.ValidationPath, o.Label, o.Ignore, o.IdColumn, main.Features);
-            var test = o.TestPath is null ? null : TabularData.Load(o.TestPath, o.Label, o.Ignore, o.IdColumn, main.Features);
+            var main = TabularData.Load(o.Data, o.Label, o.Ignore, o.IdColumn);
+            var validation = o.Validation is { } v ? TabularData.Load(v, o.Label, o.Ignore, o.IdColumn, main.Features) : null;
+            var test = o.Test is { } t ? TabularData.Load(t, o.Label, o.Ignore, o.IdColumn, main.Features) : null;
             var task = o.Task ?? main.InferTask();
             if (o.Task is null)
             {
@@ -271,7 +350,7 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             var featurizer = fitted ?? FitOn(main, training);
             return new Prepared
             {
-                Main = main, ValidationFile = validation, TestFile = test, Task = task,
+                Options = o, Main = main, ValidationFile = validation, TestFile = test, Task = task,
                 Metric = task == TaskKind.Regression ? Metric.AbsoluteError : Metric.Error, LossRange = range,
                 Classes = classes, Featurizer = featurizer, TrainingRows = training, ValidationRows = validationRows, TestRows = testRows,
             };
@@ -299,7 +378,7 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
     /// The ML.NET views of the rows. Multiclass labels become keys through a value-to-key map fitted on the training rows;
     /// predicted keys are read back through the key's own value annotations, so no ordering is assumed.
     /// </summary>
-    private sealed class Views
+    internal sealed class Views
     {
         private readonly MLContext _ml;
         private readonly Prepared _prepared;
@@ -309,7 +388,7 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
         {
             _ml = ml;
             _prepared = prepared;
-            var raw = Raw(prepared.TrainingRows);
+            var raw = Raw(prepared.At(prepared.TrainingRows));
             IEstimator<ITransformer> label = prepared.Task switch
             {
                 TaskKind.Binary => ml.Transforms.CopyColumns("Label", nameof(Row.Binary)),
@@ -318,26 +397,26 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             };
             _label = label.Fit(raw);
             Training = _label.Transform(raw);
-            Validation = Build(prepared.ValidationRows);
+            Validation = Build(prepared.At(prepared.ValidationRows));
         }
 
         public IDataView Training { get; }
 
         public IDataView Validation { get; }
 
-        public IDataView Build(IReadOnlyList<(int File, int Row)> rows) => _label.Transform(Raw(rows));
+        public IDataView Build(IEnumerable<(TabularData Data, int Row)> rows) => _label.Transform(Raw(rows));
 
-        private IDataView Raw(IReadOnlyList<(int File, int Row)> rows)
+        private IDataView Raw(IEnumerable<(TabularData Data, int Row)> rows)
         {
             var p = _prepared;
             var definition = SchemaDefinition.Create(typeof(Row));
             definition["Features"].ColumnType = new VectorDataViewType(NumberDataViewType.Single, p.Featurizer.Width);
             var data = rows.Select(r =>
             {
-                var label = p.Data(r).Label(r.Row);
+                var label = r.Data.Label(r.Row);
                 return new Row
                 {
-                    Features = p.Featurizer.Transform(p.Data(r), r.Row),
+                    Features = p.Featurizer.Transform(r.Data, r.Row),
                     Regression = p.Task == TaskKind.Regression ? (float)double.Parse(label, CultureInfo.InvariantCulture) : 0f,
                     Binary = p.Task == TaskKind.Binary && label == p.Classes[1],
                     Class = label,
@@ -347,11 +426,108 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
         }
     }
 
-    private sealed class Runner(MLContext ml, Bookkeeper book, Holdout holdout, Prepared prepared, Views views, GuardSpec? guard, string search)
+    /// <summary>The prepared rows with their ML.NET views: what a model is trained on and scored with.</summary>
+    internal sealed class Fitted
+    {
+        public Fitted(MLContext ml, Prepared prepared)
+        {
+            P = prepared;
+            Views = new Views(ml, prepared);
+            ValidationIds = prepared.ValidationRows.Select(r => prepared.Data(r).Id(r.Row)).ToList();
+        }
+
+        public Prepared P { get; }
+
+        public Views Views { get; }
+
+        /// <summary>The validation rows' ids, in the order of <see cref="Views.Validation"/>.</summary>
+        public List<string> ValidationIds { get; }
+
+        /// <summary>The mean loss of predictions against labels, in the metric of the search's holdout.</summary>
+        public double Loss(IReadOnlyList<string> labels, IReadOnlyList<string> predicted)
+        {
+            double sum = 0;
+            for (var i = 0; i < labels.Count; i++)
+            {
+                if (P.Task != TaskKind.Regression)
+                {
+                    sum += labels[i] == predicted[i] ? 0 : 1;
+                    continue;
+                }
+
+                // As the ledger computes an absolute error: clipped to the loss range, stored as float32.
+                var difference = double.Parse(predicted[i], CultureInfo.InvariantCulture) - double.Parse(labels[i], CultureInfo.InvariantCulture);
+                sum += (float)P.LossRange!.Value.Clip(Math.Abs(difference));
+            }
+
+            return sum / labels.Count;
+        }
+
+        public (double Score, int Rows) Score(MLContext ml, ITransformer model, RowSource source)
+        {
+            var o = P.Options;
+            var data = TabularData.Load(source, o.Label, o.Ignore, o.IdColumn, P.Main.Features);
+            var rows = Enumerable.Range(0, data.Count).Select(r => (data, r)).ToList();
+            var predicted = Predict(P, model, Views.Build(rows));
+            return (Loss(rows.Select(r => data.Label(r.r)).ToList(), predicted), data.Count);
+        }
+
+        /// <summary>The model's predictions as the ledger's text, in the order of the view's rows.</summary>
+        public static List<string> Predict(Prepared p, ITransformer model, IDataView view)
+        {
+            var scored = model.Transform(view);
+            var predictions = new List<string>();
+            var column = p.Task == TaskKind.Regression ? "Score" : "PredictedLabel";
+            using var cursor = scored.GetRowCursor([scored.Schema[column]]);
+            if (p.Task == TaskKind.Regression)
+            {
+                var getter = cursor.GetGetter<float>(scored.Schema[column]);
+                float value = 0;
+                while (cursor.MoveNext())
+                {
+                    getter(ref value);
+                    predictions.Add(((double)value).ToString("R", CultureInfo.InvariantCulture));
+                }
+            }
+            else if (p.Task == TaskKind.Binary)
+            {
+                var getter = cursor.GetGetter<bool>(scored.Schema[column]);
+                var value = false;
+                while (cursor.MoveNext())
+                {
+                    getter(ref value);
+                    predictions.Add(p.Classes[value ? 1 : 0]);
+                }
+            }
+            else
+            {
+                VBuffer<ReadOnlyMemory<char>> names = default;
+                scored.Schema[column].GetKeyValues(ref names);
+                var classes = names.DenseValues().Select(v => v.ToString()).ToArray();
+                var getter = cursor.GetGetter<uint>(scored.Schema[column]);
+                uint value = 0;
+                while (cursor.MoveNext())
+                {
+                    getter(ref value);
+                    // Keys are 1-based; 0 would be "missing", which a trained classifier does not predict: it counts as an error.
+                    predictions.Add(value >= 1 && value <= classes.Length ? classes[value - 1] : "(no class)");
+                }
+            }
+
+            return predictions;
+        }
+    }
+
+    private sealed class Runner(Bookkeeper book, Holdout holdout, Fitted fitted, GuardSpec? guard, string search, int seed)
     {
         public Dictionary<int, ITransformer> Models { get; } = [];
 
         public Bookkeeper Book => book;
+
+        public Fitted Fitted => fitted;
+
+        public Holdout Holdout => holdout;
+
         private readonly Stopwatch _clock = Stopwatch.StartNew();
         private readonly List<ScoredConfiguration> _looks = [];
         private ScoredConfiguration? _best;
@@ -362,21 +538,46 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
         /// <summary>A configuration trained and its holdout predictions made, not yet recorded.</summary>
         public sealed record Trained(TrainerConfiguration Configuration, ITransformer Model, double Seconds, LookInput Input);
 
-        /// <summary>Trains on the first <paramref name="fraction"/> of the (shuffled) training rows and predicts the holdout; records nothing.</summary>
+        /// <summary>
+        /// Trains on the first <paramref name="fraction"/> of the (shuffled) training rows and predicts the holdout; records
+        /// nothing. Each training has an ML.NET context of its own seeded from the search's seed, so the same configuration at
+        /// the same stage trains the same model whichever process trains it, and in whatever order.
+        /// </summary>
         public Trained Train(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage)
         {
             var started = _clock.Elapsed;
-            var rows = (long)Math.Max(2, Math.Round(prepared.TrainingRows.Count * fraction));
-            var training = fraction >= 1 ? views.Training : ml.Data.TakeRows(views.Training, rows);
-            var model = TrainerCatalog.Build(ml, prepared.Task, configuration).Fit(training);
-            var predictions = Predict(ml, prepared, model, views.Validation, prepared.ValidationRows);
+            var p = fitted.P;
+            var ml = new MLContext(seed);
+            var rows = (long)Math.Max(2, Math.Round(p.TrainingRows.Count * fraction));
+            var training = fraction >= 1 ? fitted.Views.Training : ml.Data.TakeRows(fitted.Views.Training, rows);
+            var model = TrainerCatalog.Build(ml, p.Task, configuration).Fit(training);
+            var predicted = Fitted.Predict(p, model, fitted.Views.Validation);
+            var predictions = predicted.Select((value, i) => new Prediction(fitted.ValidationIds[i], value)).ToList();
             var seconds = (_clock.Elapsed - started).TotalSeconds;
-            double? trainScore = guard?.Kind == GuardKind.Thresholdout ? TrainingScore(model, training) : null;
+            double? trainScore = null;
+            if (guard?.Kind == GuardKind.Thresholdout)
+            {
+                var labels = p.TrainingRows.Take((int)Math.Min(rows, p.TrainingRows.Count)).Select(r => p.Data(r).Label(r.Row)).ToList();
+                trainScore = fitted.Loss(labels, Fitted.Predict(p, model, training));
+            }
+
             return new Trained(configuration, model, seconds, new LookInput
             {
                 Configuration = configuration.ToJson(), Predictions = predictions, Search = search, Stage = stage,
                 Seconds = Math.Round(seconds, 3), Adaptive = adaptive, Guard = guard, TrainScore = trainScore,
             });
+        }
+
+        /// <summary>
+        /// Whether a model trained again gives exactly the per-example losses a recorded look stored: the same model, as far
+        /// as the holdout can tell (training is reproducible from the seed, so a retrained configuration on the same rows does).
+        /// </summary>
+        public bool Reproduces(Trained trained, Look look)
+        {
+            var stored = book.Store.LossBytes(holdout, look.Number);
+            if (stored is null) return false;
+            var losses = Losses.Compute(holdout, book.Store.Examples(holdout), trained.Input.Predictions!);
+            return losses.Bytes.AsSpan().SequenceEqual(stored);
         }
 
         /// <summary>Trains, scores the holdout, records one look.</summary>
@@ -404,17 +605,11 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             return (look, told);
         }
 
-        private double TrainingScore(ITransformer model, IDataView training)
-        {
-            var rows = prepared.TrainingRows.Take((int)Math.Min(int.MaxValue, training.GetRowCount() ?? prepared.TrainingRows.Count)).ToList();
-            var examples = rows.Select(r => new HoldoutExample(prepared.Data(r).Id(r.Row), prepared.Data(r).Label(r.Row))).OrderBy(e => e.Id, StringComparer.Ordinal).ToList();
-            return Losses.Compute(holdout with { Size = examples.Count }, examples, Predict(ml, prepared, model, training, rows)).Score;
-        }
+        /// <summary>Reports progress; <paramref name="best"/> overrides this process's own best (a shared search shows the whole search's).</summary>
+        public void Report(IProgress<SearchProgress>? progress, int done, int total, string current, double? best = null) =>
+            progress?.Report(new SearchProgress(done, total, best ?? _best?.Look.Score, _clock.Elapsed, current));
 
-        public void Report(IProgress<SearchProgress>? progress, int done, int total, string current) =>
-            progress?.Report(new SearchProgress(done, total, _best?.Look.Score, _clock.Elapsed, current));
-
-        public SearchOutcome Outcome(bool cancelled) => new(_looks, _best, null, cancelled);
+        public SearchOutcome Outcome(bool cancelled) => new(_looks, _best, cancelled);
 
         public SearchOutcome Plain(ISearchStrategy strategy, int looks, IProgress<SearchProgress>? progress, CancellationToken cancel)
         {
@@ -460,54 +655,6 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
 
             Report(progress, total, total, "done");
             return Outcome(false);
-        }
-
-        public static List<Prediction> Predict(MLContext ml, Prepared p, ITransformer model, IDataView view, IReadOnlyList<(int File, int Row)> rows)
-        {
-            var scored = model.Transform(view);
-            var predictions = new List<Prediction>(rows.Count);
-            var column = p.Task == TaskKind.Regression ? "Score" : "PredictedLabel";
-            using var cursor = scored.GetRowCursor([scored.Schema[column]]);
-            var i = 0;
-            if (p.Task == TaskKind.Regression)
-            {
-                var getter = cursor.GetGetter<float>(scored.Schema[column]);
-                float value = 0;
-                while (cursor.MoveNext())
-                {
-                    getter(ref value);
-                    predictions.Add(new Prediction(p.Data(rows[i]).Id(rows[i].Row), ((double)value).ToString("R", CultureInfo.InvariantCulture)));
-                    i++;
-                }
-            }
-            else if (p.Task == TaskKind.Binary)
-            {
-                var getter = cursor.GetGetter<bool>(scored.Schema[column]);
-                var value = false;
-                while (cursor.MoveNext())
-                {
-                    getter(ref value);
-                    predictions.Add(new Prediction(p.Data(rows[i]).Id(rows[i].Row), p.Classes[value ? 1 : 0]));
-                    i++;
-                }
-            }
-            else
-            {
-                VBuffer<ReadOnlyMemory<char>> names = default;
-                scored.Schema[column].GetKeyValues(ref names);
-                var classes = names.DenseValues().Select(v => v.ToString()).ToArray();
-                var getter = cursor.GetGetter<uint>(scored.Schema[column]);
-                uint value = 0;
-                while (cursor.MoveNext())
-                {
-                    getter(ref value);
-                    // Keys are 1-based; 0 would be "missing", which a trained classifier does not predict: it counts as an error.
-                    predictions.Add(new Prediction(p.Data(rows[i]).Id(rows[i].Row), value >= 1 && value <= classes.Length ? classes[value - 1] : "(no class)"));
-                    i++;
-                }
-            }
-
-            return predictions;
         }
     }
 }

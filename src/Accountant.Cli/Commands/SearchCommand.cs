@@ -34,13 +34,14 @@ internal sealed class SearchCommand : Command
         var plot = new Option<string?>("--plot") { Description = "Also write the search's plot (.png or .svg)." };
         var quiet = new Option<bool>("--quiet") { Description = "No progress bar." };
         var share = new Option<string?>("--share") { Description = "Work through one search plan, stored in the ledger, with every other worker given the same NAME and settings (random, grid or halving); the ledger must exist (accountant init)." };
+        var finish = new Option<bool>("--finish") { Description = "With --share, when every configuration of the shared search is done: only save the selected model and its record (when no worker did), then print the statement; give the workers' settings." };
         var lease = new Option<string>("--lease") { Description = "With --share: how long a claimed configuration stays this worker's unless renewed (renewed while it trains), e.g. 90s, 5m, 1500ms.", DefaultValueFactory = _ => "2m" };
         var confidence = Common.Confidence();
         var tolerance = Common.Tolerance(0.02);
         var twoSided = Common.TwoSided();
         var format = Common.Format("table", "json", "markdown");
         Arguments.Add(data);
-        foreach (var option in new Option[] { label, task, ignore, idColumn, seed, validationFraction, testFraction, validation, test, space, printSpace, strategy, looks, guard, name, modelOut, plot, quiet, share, lease, confidence, tolerance, twoSided, format })
+        foreach (var option in new Option[] { label, task, ignore, idColumn, seed, validationFraction, testFraction, validation, test, space, printSpace, strategy, looks, guard, name, modelOut, plot, quiet, share, finish, lease, confidence, tolerance, twoSided, format })
         {
             Options.Add(option);
         }
@@ -64,7 +65,7 @@ internal sealed class SearchCommand : Command
                 ValidationPath = r.GetValue(validation), TestPath = r.GetValue(test), SpacePath = r.GetValue(space), Strategy = r.GetValue(strategy)!,
                 Looks = r.GetValue(looks), Guard = r.GetValue(guard) is { } g ? Guards.GuardSpec.Parse(g) : null, HoldoutName = r.GetValue(name),
                 ModelPath = r.GetValue(modelOut), Statement = Common.StatementOptions(r, confidence, tolerance, twoSided),
-                Share = r.GetValue(share), Lease = Duration(r.GetValue(lease)!, "--lease"),
+                Share = r.GetValue(share), Lease = Duration(r.GetValue(lease)!, "--lease"), Finish = r.GetValue(finish),
             };
             var plotPath = r.GetValue(plot);
             if (plotPath is not null) StatementPlot.CheckPath(plotPath);
@@ -92,8 +93,8 @@ internal sealed class SearchCommand : Command
             if (r.GetValue(format) == "table")
             {
                 env.Output.WriteLine();
-                var model = outcome.SharedWorker is null || outcome.ModelSaved ? $"selected model {outcome.ModelPath}"
-                    : outcome.SelectedBy is { } by ? $"the selected model is saved by worker {by}, which trained it" : "no selected model";
+                var model = outcome.ModelSaved ? $"selected model {outcome.ModelPath}"
+                    : outcome.SavedBy is { } by ? $"the selected model was saved by worker {by} (its record at {outcome.SavedAt})" : "no selected model saved by this search";
                 env.Output.WriteLine($"Data         {Text.Count(outcome.TrainingRows)} training, {Text.Count(outcome.ValidationRows)} validation and {Text.Count(outcome.TestRows)} sealed test rows; {model}");
                 env.Output.WriteLine($"Next         'accountant unseal {outcome.Statement.Holdout.Name}' scores the selected model on the sealed test set, once.");
             }

@@ -48,10 +48,11 @@ public sealed class TabularData
     public static bool TryNumber(string value, out double number) =>
         double.TryParse(value.Trim(), NumberStyles.Float, CultureInfo.InvariantCulture, out number) && double.IsFinite(number);
 
-    /// <summary>Loads a file; <paramref name="featureColumns"/> fixes the feature columns (and their kinds) to those of another file.</summary>
-    public static TabularData Load(string path, string label, IReadOnlyCollection<string> ignore, string? idColumn, IReadOnlyList<FeatureColumn>? featureColumns = null)
+    /// <summary>Loads rows; <paramref name="featureColumns"/> fixes the feature columns (and their kinds) to those of another source.</summary>
+    public static TabularData Load(RowSource source, string label, IReadOnlyCollection<string> ignore, string? idColumn, IReadOnlyList<FeatureColumn>? featureColumns = null)
     {
-        var table = CsvTable.Load(path);
+        var table = source.Load();
+        var path = source.Name;
         var labelIndex = table.Column(label, "--label");
         int? idIndex = idColumn is null ? null : table.Column(idColumn, "--id-column");
         foreach (var name in ignore)

@@ -210,6 +210,29 @@ public sealed class CsvTable
             EndRecord();
         }
 
+        return FromRecords(source, records, recordLines);
+    }
+
+    /// <summary>
+    /// A table of rows already split into fields (rows made in memory rather than read from a file), checked as a file
+    /// is: unique non-empty column names, every row with one field per column. Rows are numbered as the lines of a file
+    /// would be: the header is line 1.
+    /// </summary>
+    public static CsvTable FromRows(string source, IReadOnlyList<string> header, IEnumerable<string[]> rows)
+    {
+        var records = new List<List<string>> { header.ToList() };
+        var lines = new List<int> { 1 };
+        foreach (var row in rows)
+        {
+            records.Add([.. row]);
+            lines.Add(lines.Count + 1);
+        }
+
+        return FromRecords(source, records, lines);
+    }
+
+    private static CsvTable FromRecords(string source, List<List<string>> records, List<int> recordLines)
+    {
         if (records.Count == 0)
         {
             throw AccountantException.BadInput($"'{source}' is empty; give a CSV file with a header row and at least one data row.");
