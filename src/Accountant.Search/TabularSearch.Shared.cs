@@ -350,6 +350,8 @@ public sealed partial class TabularSearch
                 ("seed", o.Seed.ToString(CultureInfo.InvariantCulture), "--seed"),
                 ("validationFraction", Number(o.ValidationFraction), "--validation-fraction"),
                 ("testFraction", Number(o.TestFraction), "--test-fraction"),
+                ("maxSplitRows", o.MaxSplitRows.ToString(CultureInfo.InvariantCulture), "--max-split-rows"),
+                ("hashBits", o.HashBits.ToString(CultureInfo.InvariantCulture), "--hash-bits"),
                 ("strategy", o.Strategy, "--strategy"),
                 ("looks", o.Looks.ToString(CultureInfo.InvariantCulture), "--looks"),
                 ("guard", o.Guard?.ToString(), "--guard"),
@@ -359,7 +361,7 @@ public sealed partial class TabularSearch
             using (var w = new Utf8JsonWriter(buffer))
             {
                 w.WriteStartObject();
-                w.WriteNumber("v", 1);
+                w.WriteNumber("v", 2);
                 foreach (var (key, value, _) in s._fields) w.WriteString(key, value);
                 w.WriteEndObject();
             }

@@ -48,6 +48,17 @@ public sealed record TabularSearchOptions
     /// <summary>The label grouping this search's looks in the ledger; by default search-STRATEGY-seedSEED (the share name in a shared search).</summary>
     public string? SearchLabel { get; init; }
 
+    /// <summary>
+    /// The most rows each part (training, validation, test) keeps; a larger part keeps a seeded sample of this many,
+    /// stratified by class, and the rest are left out (said on stderr and in the search record). Bounds memory.
+    /// </summary>
+    public long MaxSplitRows { get; init; } = DefaultMaxSplitRows;
+
+    public const long DefaultMaxSplitRows = 1_000_000;
+
+    /// <summary>Bits of the hash a categorical column with more than <see cref="Featurizer.MaxLevels"/> training values is hashed to.</summary>
+    public int HashBits { get; init; } = Featurizer.DefaultHashBits;
+
     /// <summary>With <see cref="Share"/>: only the closing step, saving the selected model of a shared search whose tasks are all done.</summary>
     public bool Finish { get; init; }
 
@@ -66,6 +77,9 @@ public sealed record TabularSearchOutcome(
     Statement Statement, SearchOutcome Search, TaskKind Task, bool TaskInferred, string ModelPath, string RecordPath,
     int TrainingRows, int ValidationRows, int TestRows)
 {
+    /// <summary>Rows the row cap (<see cref="TabularSearchOptions.MaxSplitRows"/>) left out of the search.</summary>
+    public long LeftOut { get; init; }
+
     /// <summary>Whether this process saved the selected model and its record (a shared worker saves them only when it trained the selected look).</summary>
     public bool ModelSaved { get; init; }
 
@@ -141,7 +155,7 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
         }
 
         CheckFinish(options);
-        var prepared = Prepared.Load(options, note);
+        var prepared = Prepared.Load(options, note, progress);
         var task = prepared.Task;
         var space = options.SpacePath is { } spacePath ? SpaceFile.Read(spacePath, task) : TrainerCatalog.DefaultSpace(task);
         var name = options.HoldoutName ?? DefaultHoldoutName(options.DataPath);
@@ -183,7 +197,7 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
 
     private static TabularSearchOutcome Outcome(TabularSearchOptions options, Fitted fitted, Statement statement, SearchOutcome search, string modelPath, string recordPath) =>
         new(statement, search, fitted.P.Task, options.Task is null, modelPath, recordPath,
-            fitted.P.TrainingRows.Count, fitted.P.ValidationRows.Count, fitted.P.TestRows.Count);
+            fitted.P.Training.Count, fitted.P.Validation.Count, fitted.P.Test.Count) { LeftOut = fitted.P.LeftOut.Sum() };
 
     /// <summary>
     /// Writes the selected model and the record unseal reads. Each file is written under a temporary name and moved into
@@ -199,7 +213,9 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             ValidationPath = options.ValidationPath is null ? null : Path.GetFullPath(options.ValidationPath),
             TestPath = options.TestPath is null ? null : Path.GetFullPath(options.TestPath),
             Holdout = holdout, Look = best.Number, Configuration = best.Configuration, ModelPath = Path.GetFullPath(modelPath),
-            Featurizer = p.Featurizer, Classes = p.Classes, TestRows = p.TestRows.Count,
+            Featurizer = p.Featurizer, Classes = p.Classes, MaxSplitRows = options.MaxSplitRows,
+            TrainingRows = p.Training.Count, ValidationRows = p.Validation.Count, TestRows = p.Test.Count, LeftOut = [.. p.LeftOut],
+            TestFingerprint = p.TestFingerprint,
         };
         var partial = $".{Environment.ProcessId}-{Guid.NewGuid():N}.part";
         _ml.Model.Save(model, fitted.Views.Training.Schema, modelPath + partial);
@@ -208,20 +224,29 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
         File.Move(recordPath + partial, recordPath, overwrite: true);
     }
 
-    /// <summary>Scores the selected model on the sealed test rows, once, and returns the test score and the number of test examples.</summary>
+    /// <summary>
+    /// Scores the selected model on the sealed test rows, once, and returns the test score, the number of test examples and
+    /// their fingerprint. The rows are rebuilt from the record (the same file, seed, fractions and cap give the same split);
+    /// the validation rows must still give the holdout and the test rows the fingerprint the search recorded.
+    /// </summary>
     public (double Score, int Rows, string Fingerprint) ScoreTest(SearchRecord record)
     {
         var options = record.ToOptions();
-        var prepared = Prepared.Load(options, null, record.Featurizer);
-        if (prepared.TestRows.Count == 0)
+        var prepared = Prepared.Load(options, null, null, record.Featurizer, Purpose.Unseal);
+        if (prepared.Test.Count == 0)
         {
             throw AccountantException.BadArguments("the search kept no sealed test set (--test-fraction 0 and no --test file), so there is nothing to unseal.");
         }
 
         var holdout = book.Holdout(record.Holdout);
-        if (Fingerprint.Compute(prepared.ValidationExamples().Select(e => e with { Label = Fingerprint.CanonicalLabel(e.Label) }).OrderBy(e => e.Id, StringComparer.Ordinal).ToList()) != holdout.Fingerprint)
+        if (Fingerprint.Compute(prepared.ValidationExamples().OrderBy(e => e.Id, StringComparer.Ordinal).ToList()) != holdout.Fingerprint)
         {
             throw AccountantException.BadInput($"the data in '{record.DataPath}' no longer gives holdout '{holdout.Name}' (its validation rows differ); the test set cannot be rebuilt from a changed file.");
+        }
+
+        if (prepared.TestFingerprint != record.TestFingerprint)
+        {
+            throw AccountantException.BadInput($"the data in '{record.DataPath}' no longer gives the sealed test rows the search recorded (their fingerprint differs); the test set cannot be rebuilt from a changed file.");
         }
 
         ITransformer model;
@@ -234,288 +259,8 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             throw AccountantException.BadInput($"the selected model '{record.ModelPath}' cannot be loaded ({e.Message.TrimEnd('.')}); rerun the search to save it again.");
         }
 
-        var fitted = new Fitted(_ml, prepared);
-        var predicted = Fitted.Predict(prepared, model, fitted.Views.Build(prepared.At(prepared.TestRows)));
-        var examples = prepared.TestRows.Select(r => new HoldoutExample(prepared.Data(r).Id(r.Row), prepared.Data(r).Label(r.Row))).ToList();
-        var predictions = examples.Select((e, i) => new Prediction(e.Id, predicted[i])).ToList();
-        var sorted = examples.OrderBy(e => e.Id, StringComparer.Ordinal).ToList();
-        var stand = holdout with { Size = sorted.Count };
-        var losses = Losses.Compute(stand, sorted, predictions);
-        return (losses.Score, sorted.Count, Fingerprint.Compute(sorted));
-    }
-
-    /// <summary>Everything read and split, ready for training.</summary>
-    internal sealed class Prepared
-    {
-        public required TabularSearchOptions Options { get; init; }
-        public required TabularData Main { get; init; }
-        public TabularData? ValidationFile { get; init; }
-        public TabularData? TestFile { get; init; }
-        public required TaskKind Task { get; init; }
-        public required Metric Metric { get; init; }
-        public LossRange? LossRange { get; init; }
-        public required List<string> Classes { get; init; }
-        public required Featurizer Featurizer { get; init; }
-        // Rows are encoded as (file, row): 0 main, 1 validation file, 2 test file.
-        public required List<(int File, int Row)> TrainingRows { get; init; }
-        public required List<(int File, int Row)> ValidationRows { get; init; }
-        public required List<(int File, int Row)> TestRows { get; init; }
-
-        public TabularData Data((int File, int Row) r) => r.File switch { 1 => ValidationFile!, 2 => TestFile!, _ => Main };
-
-        public IEnumerable<(TabularData Data, int Row)> At(IEnumerable<(int File, int Row)> rows) => rows.Select(r => (Data(r), r.Row));
-
-        public List<HoldoutExample> ValidationExamples() =>
-            ValidationRows.Select(r => new HoldoutExample(Data(r).Id(r.Row), Data(r).Label(r.Row))).ToList();
-
-        public static Prepared Load(TabularSearchOptions o, Action<string>? note, Featurizer? fitted = null)
-        {
-            var main = TabularData.Load(o.Data, o.Label, o.Ignore, o.IdColumn);
-            var validation = o.Validation is { } v ? TabularData.Load(v, o.Label, o.Ignore, o.IdColumn, main.Features) : null;
-            var test = o.Test is { } t ? TabularData.Load(t, o.Label, o.Ignore, o.IdColumn, main.Features) : null;
-            var task = o.Task ?? main.InferTask();
-            if (o.Task is null)
-            {
-                note?.Invoke($"task inferred from the label column '{o.Label}': {Describe(task)} (give --task to choose)");
-            }
-            else if (task != TaskKind.Regression && main.InferTask() == TaskKind.Regression && o.Task != TaskKind.Regression)
-            {
-                note?.Invoke($"the label column '{o.Label}' looks continuous but is treated as classes, as --task asks");
-            }
-
-            var labels = Enumerable.Range(0, main.Count).Select(main.Label).ToList();
-            List<(int, int)> training, validationRows, testRows;
-            if (validation is null)
-            {
-                var testFraction = test is null ? o.TestFraction : 0.0;
-                var split = Splits.Make(labels, o.ValidationFraction, testFraction, o.Seed, stratify: task != TaskKind.Regression);
-                training = split.Training.Select(r => (0, r)).ToList();
-                validationRows = split.Validation.Select(r => (0, r)).ToList();
-                testRows = test is null ? split.Test.Select(r => (0, r)).ToList() : Enumerable.Range(0, test.Count).Select(r => (2, r)).ToList();
-            }
-            else
-            {
-                training = Enumerable.Range(0, main.Count).Select(r => (0, r)).ToList();
-                validationRows = Enumerable.Range(0, validation.Count).Select(r => (1, r)).ToList();
-                if (test is null && o.TestFraction > 0)
-                {
-                    var split = Splits.Make(labels, o.TestFraction, 0.0, o.Seed, stratify: task != TaskKind.Regression);
-                    training = split.Training.Select(r => (0, r)).ToList();
-                    testRows = split.Validation.Select(r => (0, r)).ToList();
-                }
-                else
-                {
-                    testRows = test is null ? [] : Enumerable.Range(0, test.Count).Select(r => (2, r)).ToList();
-                }
-            }
-
-            TabularData Of(int file) => file switch { 1 => validation!, 2 => test!, _ => main };
-            var ids = validationRows.Select(r => Of(r.Item1).Id(r.Item2)).ToList();
-            if (ids.Distinct(StringComparer.Ordinal).Count() != ids.Count)
-            {
-                throw AccountantException.BadInput($"the validation rows repeat an id in '{o.IdColumn}'; ids must be unique (leave out --id-column to use line numbers).");
-            }
-
-            var classes = task == TaskKind.Regression ? [] : training.Concat(validationRows).Concat(testRows).Select(r => Of(r.Item1).Label(r.Item2)).Distinct().Order(StringComparer.Ordinal).ToList();
-            if (task == TaskKind.Binary && classes.Count != 2)
-            {
-                throw AccountantException.BadInput($"binary classification needs exactly two label values, but '{o.Label}' has {classes.Count}; use --task multiclass.");
-            }
-
-            if (task == TaskKind.Regression)
-            {
-                foreach (var r in training.Concat(validationRows).Concat(testRows))
-                {
-                    if (!TabularData.TryNumber(Of(r.Item1).Label(r.Item2), out _))
-                    {
-                        throw AccountantException.BadInput($"regression needs numeric labels, but '{o.Label}' has '{Of(r.Item1).Label(r.Item2)}'; use --task binary or multiclass for classes.");
-                    }
-                }
-            }
-
-            if (training.Count < 2)
-            {
-                throw AccountantException.BadInput("fewer than two training rows remain after the split; give more data or lower the split fractions.");
-            }
-
-            // Regression losses are clipped to [0, range of the training labels], declared from training data alone.
-            LossRange? range = null;
-            if (task == TaskKind.Regression)
-            {
-                var values = training.Select(r => double.Parse(Of(r.Item1).Label(r.Item2), CultureInfo.InvariantCulture)).ToList();
-                var width = values.Max() - values.Min();
-                range = new LossRange(0, width > 0 ? width : 1.0);
-            }
-
-            var featurizer = fitted ?? FitOn(main, training);
-            return new Prepared
-            {
-                Options = o, Main = main, ValidationFile = validation, TestFile = test, Task = task,
-                Metric = task == TaskKind.Regression ? Metric.AbsoluteError : Metric.Error, LossRange = range,
-                Classes = classes, Featurizer = featurizer, TrainingRows = training, ValidationRows = validationRows, TestRows = testRows,
-            };
-        }
-
-        private static Featurizer FitOn(TabularData main, List<(int, int)> training) => Featurizer.Fit(main, training.Select(r => r.Item2).ToList());
-
-        private static string Describe(TaskKind task) => task switch
-        {
-            TaskKind.Binary => "binary classification",
-            TaskKind.Multiclass => "multiclass classification",
-            _ => "regression",
-        };
-    }
-
-    private sealed class Row
-    {
-        public float[] Features { get; set; } = [];
-        public float Regression { get; set; }
-        public bool Binary { get; set; }
-        public string Class { get; set; } = "";
-    }
-
-    /// <summary>
-    /// The ML.NET views of the rows. Multiclass labels become keys through a value-to-key map fitted on the training rows;
-    /// predicted keys are read back through the key's own value annotations, so no ordering is assumed.
-    /// </summary>
-    internal sealed class Views
-    {
-        private readonly MLContext _ml;
-        private readonly Prepared _prepared;
-        private readonly ITransformer _label;
-
-        public Views(MLContext ml, Prepared prepared)
-        {
-            _ml = ml;
-            _prepared = prepared;
-            var raw = Raw(prepared.At(prepared.TrainingRows));
-            IEstimator<ITransformer> label = prepared.Task switch
-            {
-                TaskKind.Binary => ml.Transforms.CopyColumns("Label", nameof(Row.Binary)),
-                TaskKind.Multiclass => ml.Transforms.Conversion.MapValueToKey("Label", nameof(Row.Class)),
-                _ => ml.Transforms.CopyColumns("Label", nameof(Row.Regression)),
-            };
-            _label = label.Fit(raw);
-            Training = _label.Transform(raw);
-            Validation = Build(prepared.At(prepared.ValidationRows));
-        }
-
-        public IDataView Training { get; }
-
-        public IDataView Validation { get; }
-
-        public IDataView Build(IEnumerable<(TabularData Data, int Row)> rows) => _label.Transform(Raw(rows));
-
-        private IDataView Raw(IEnumerable<(TabularData Data, int Row)> rows)
-        {
-            var p = _prepared;
-            var definition = SchemaDefinition.Create(typeof(Row));
-            definition["Features"].ColumnType = new VectorDataViewType(NumberDataViewType.Single, p.Featurizer.Width);
-            var data = rows.Select(r =>
-            {
-                var label = r.Data.Label(r.Row);
-                return new Row
-                {
-                    Features = p.Featurizer.Transform(r.Data, r.Row),
-                    Regression = p.Task == TaskKind.Regression ? (float)double.Parse(label, CultureInfo.InvariantCulture) : 0f,
-                    Binary = p.Task == TaskKind.Binary && label == p.Classes[1],
-                    Class = label,
-                };
-            }).ToList();
-            return _ml.Data.LoadFromEnumerable(data, definition);
-        }
-    }
-
-    /// <summary>The prepared rows with their ML.NET views: what a model is trained on and scored with.</summary>
-    internal sealed class Fitted
-    {
-        public Fitted(MLContext ml, Prepared prepared)
-        {
-            P = prepared;
-            Views = new Views(ml, prepared);
-            ValidationIds = prepared.ValidationRows.Select(r => prepared.Data(r).Id(r.Row)).ToList();
-        }
-
-        public Prepared P { get; }
-
-        public Views Views { get; }
-
-        /// <summary>The validation rows' ids, in the order of <see cref="Views.Validation"/>.</summary>
-        public List<string> ValidationIds { get; }
-
-        /// <summary>The mean loss of predictions against labels, in the metric of the search's holdout.</summary>
-        public double Loss(IReadOnlyList<string> labels, IReadOnlyList<string> predicted)
-        {
-            double sum = 0;
-            for (var i = 0; i < labels.Count; i++)
-            {
-                if (P.Task != TaskKind.Regression)
-                {
-                    sum += labels[i] == predicted[i] ? 0 : 1;
-                    continue;
-                }
-
-                // As the ledger computes an absolute error: clipped to the loss range, stored as float32.
-                var difference = double.Parse(predicted[i], CultureInfo.InvariantCulture) - double.Parse(labels[i], CultureInfo.InvariantCulture);
-                sum += (float)P.LossRange!.Value.Clip(Math.Abs(difference));
-            }
-
-            return sum / labels.Count;
-        }
-
-        public (double Score, int Rows) Score(MLContext ml, ITransformer model, RowSource source)
-        {
-            var o = P.Options;
-            var data = TabularData.Load(source, o.Label, o.Ignore, o.IdColumn, P.Main.Features);
-            var rows = Enumerable.Range(0, data.Count).Select(r => (data, r)).ToList();
-            var predicted = Predict(P, model, Views.Build(rows));
-            return (Loss(rows.Select(r => data.Label(r.r)).ToList(), predicted), data.Count);
-        }
-
-        /// <summary>The model's predictions as the ledger's text, in the order of the view's rows.</summary>
-        public static List<string> Predict(Prepared p, ITransformer model, IDataView view)
-        {
-            var scored = model.Transform(view);
-            var predictions = new List<string>();
-            var column = p.Task == TaskKind.Regression ? "Score" : "PredictedLabel";
-            using var cursor = scored.GetRowCursor([scored.Schema[column]]);
-            if (p.Task == TaskKind.Regression)
-            {
-                var getter = cursor.GetGetter<float>(scored.Schema[column]);
-                float value = 0;
-                while (cursor.MoveNext())
-                {
-                    getter(ref value);
-                    predictions.Add(((double)value).ToString("R", CultureInfo.InvariantCulture));
-                }
-            }
-            else if (p.Task == TaskKind.Binary)
-            {
-                var getter = cursor.GetGetter<bool>(scored.Schema[column]);
-                var value = false;
-                while (cursor.MoveNext())
-                {
-                    getter(ref value);
-                    predictions.Add(p.Classes[value ? 1 : 0]);
-                }
-            }
-            else
-            {
-                VBuffer<ReadOnlyMemory<char>> names = default;
-                scored.Schema[column].GetKeyValues(ref names);
-                var classes = names.DenseValues().Select(v => v.ToString()).ToArray();
-                var getter = cursor.GetGetter<uint>(scored.Schema[column]);
-                uint value = 0;
-                while (cursor.MoveNext())
-                {
-                    getter(ref value);
-                    // Keys are 1-based; 0 would be "missing", which a trained classifier does not predict: it counts as an error.
-                    predictions.Add(value >= 1 && value <= classes.Length ? classes[value - 1] : "(no class)");
-                }
-            }
-
-            return predictions;
-        }
+        var predicted = Fitted.Predict(prepared, model, new Views(_ml, prepared, fit: false).Build(prepared.Test, prepared.Binding));
+        return (prepared.Mean(holdout.LossRange, prepared.Test, predicted), prepared.Test.Count, prepared.TestFingerprint!);
     }
 
     private sealed class Runner(Bookkeeper book, Holdout holdout, Fitted fitted, GuardSpec? guard, string search, int seed)
@@ -548,22 +293,20 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             var started = _clock.Elapsed;
             var p = fitted.P;
             var ml = new MLContext(seed);
-            var rows = (long)Math.Max(2, Math.Round(p.TrainingRows.Count * fraction));
+            var rows = (int)Math.Max(2, Math.Round(p.Training.Count * fraction));
             var training = fraction >= 1 ? fitted.Views.Training : ml.Data.TakeRows(fitted.Views.Training, rows);
             var model = TrainerCatalog.Build(ml, p.Task, configuration).Fit(training);
-            var predicted = Fitted.Predict(p, model, fitted.Views.Validation);
-            var predictions = predicted.Select((value, i) => new Prediction(fitted.ValidationIds[i], value)).ToList();
+            var losses = fitted.Losses(Fitted.Predict(p, model, fitted.Views.Validation));
             var seconds = (_clock.Elapsed - started).TotalSeconds;
             double? trainScore = null;
             if (guard?.Kind == GuardKind.Thresholdout)
             {
-                var labels = p.TrainingRows.Take((int)Math.Min(rows, p.TrainingRows.Count)).Select(r => p.Data(r).Label(r.Row)).ToList();
-                trainScore = fitted.Loss(labels, Fitted.Predict(p, model, training));
+                trainScore = p.Mean(holdout.LossRange, p.Training, Fitted.Predict(p, model, training), p.TrainingOrder);
             }
 
             return new Trained(configuration, model, seconds, new LookInput
             {
-                Configuration = configuration.ToJson(), Predictions = predictions, Search = search, Stage = stage,
+                Configuration = configuration.ToJson(), Losses = losses, Search = search, Stage = stage,
                 Seconds = Math.Round(seconds, 3), Adaptive = adaptive, Guard = guard, TrainScore = trainScore,
             });
         }
@@ -572,13 +315,8 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
         /// Whether a model trained again gives exactly the per-example losses a recorded look stored: the same model, as far
         /// as the holdout can tell (training is reproducible from the seed, so a retrained configuration on the same rows does).
         /// </summary>
-        public bool Reproduces(Trained trained, Look look)
-        {
-            var stored = book.Store.LossBytes(holdout, look.Number);
-            if (stored is null) return false;
-            var losses = Losses.Compute(holdout, book.Store.Examples(holdout), trained.Input.Predictions!);
-            return losses.Bytes.AsSpan().SequenceEqual(stored);
-        }
+        public bool Reproduces(Trained trained, Look look) =>
+            book.Store.LossBytes(holdout, look.Number) is { } stored && trained.Input.Losses.AsSpan().SequenceEqual(stored);
 
         /// <summary>Trains, scores the holdout, records one look.</summary>
         private (Look Look, double? Told) Evaluate(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage)
@@ -664,7 +402,10 @@ public sealed class SearchRecord
 {
     public static readonly JsonSerializerOptions JsonOptions = new() { WriteIndented = true };
 
-    public int Version { get; set; } = 1;
+    /// <summary>Version 2 (streamed splits, the row cap, feature hashing, the test rows' fingerprint); version 1 records are refused.</summary>
+    public const int CurrentVersion = 2;
+
+    public int Version { get; set; } = CurrentVersion;
     public string DataPath { get; set; } = "";
     public string Label { get; set; } = "";
     public string Task { get; set; } = "";
@@ -681,20 +422,36 @@ public sealed class SearchRecord
     public string ModelPath { get; set; } = "";
     public Featurizer Featurizer { get; set; } = new();
     public List<string> Classes { get; set; } = [];
+    public long MaxSplitRows { get; set; } = TabularSearchOptions.DefaultMaxSplitRows;
+    public int TrainingRows { get; set; }
+    public int ValidationRows { get; set; }
     public int TestRows { get; set; }
+
+    /// <summary>Rows of each part (training, validation, test) the cap left out of the search.</summary>
+    public List<long> LeftOut { get; set; } = [];
+
+    /// <summary>The fingerprint of the sealed test rows' ids and labels when the search split them; unseal must rebuild the same.</summary>
+    public string? TestFingerprint { get; set; }
 
     public TabularSearchOptions ToOptions() => new()
     {
         DataPath = DataPath, Label = Label, Task = Enum.Parse<TaskKind>(Task, ignoreCase: true), Ignore = Ignore, IdColumn = IdColumn, Seed = Seed,
         ValidationFraction = ValidationFraction, TestFraction = TestFraction, ValidationPath = ValidationPath, TestPath = TestPath, HoldoutName = Holdout,
+        MaxSplitRows = MaxSplitRows, HashBits = Featurizer.HashBits,
     };
 
     public static SearchRecord Read(string path)
     {
         try
         {
-            return JsonSerializer.Deserialize<SearchRecord>(File.ReadAllText(path), JsonOptions)
-                   ?? throw AccountantException.BadInput($"the search record '{path}' is empty; rerun the search.");
+            var record = JsonSerializer.Deserialize<SearchRecord>(File.ReadAllText(path), JsonOptions)
+                         ?? throw AccountantException.BadInput($"the search record '{path}' is empty; rerun the search.");
+            if (record.Version != CurrentVersion)
+            {
+                throw AccountantException.BadInput($"the search record '{path}' is of version {record.Version}, written by another version of the accountant whose split this one does not rebuild; unseal it with that version, or rerun the search.");
+            }
+
+            return record;
         }
         catch (FileNotFoundException)
         {

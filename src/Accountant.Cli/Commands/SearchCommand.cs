@@ -23,6 +23,8 @@ internal sealed class SearchCommand : Command
         var testFraction = new Option<double>("--test-fraction") { Description = "Share of rows sealed as the test set.", DefaultValueFactory = _ => 0.2 };
         var validation = new Option<string?>("--validation") { Description = "A separate validation file (same columns)." };
         var test = new Option<string?>("--test") { Description = "A separate test file to seal (same columns)." };
+        var maxSplitRows = new Option<long>("--max-split-rows") { Description = "The most rows each of training, validation and test keeps: a larger one keeps a seeded sample of this many, stratified by class (bounds memory on large files).", DefaultValueFactory = _ => TabularSearchOptions.DefaultMaxSplitRows };
+        var hashBits = new Option<int>("--hash-bits") { Description = "A categorical column with more than 50 training values is hashed into 2^BITS slots.", DefaultValueFactory = _ => Featurizer.DefaultHashBits };
         var space = new Option<string?>("--space") { Description = "A search space JSON file (see --print-space)." };
         var printSpace = new Option<bool>("--print-space") { Description = "Print the default search space for --task (binary by default) and stop." };
         var strategy = new Option<string>("--strategy") { Description = "random, grid (non-adaptive), refine or halving (adaptive).", DefaultValueFactory = _ => "random" };
@@ -41,7 +43,7 @@ internal sealed class SearchCommand : Command
         var twoSided = Common.TwoSided();
         var format = Common.Format("table", "json", "markdown");
         Arguments.Add(data);
-        foreach (var option in new Option[] { label, task, ignore, idColumn, seed, validationFraction, testFraction, validation, test, space, printSpace, strategy, looks, guard, name, modelOut, plot, quiet, share, finish, lease, confidence, tolerance, twoSided, format })
+        foreach (var option in new Option[] { label, task, ignore, idColumn, seed, validationFraction, testFraction, validation, test, maxSplitRows, hashBits, space, printSpace, strategy, looks, guard, name, modelOut, plot, quiet, share, finish, lease, confidence, tolerance, twoSided, format })
         {
             Options.Add(option);
         }
@@ -66,6 +68,7 @@ internal sealed class SearchCommand : Command
                 Looks = r.GetValue(looks), Guard = r.GetValue(guard) is { } g ? Guards.GuardSpec.Parse(g) : null, HoldoutName = r.GetValue(name),
                 ModelPath = r.GetValue(modelOut), Statement = Common.StatementOptions(r, confidence, tolerance, twoSided),
                 Share = r.GetValue(share), Lease = Duration(r.GetValue(lease)!, "--lease"), Finish = r.GetValue(finish),
+                MaxSplitRows = r.GetValue(maxSplitRows), HashBits = r.GetValue(hashBits),
             };
             var plotPath = r.GetValue(plot);
             if (plotPath is not null) StatementPlot.CheckPath(plotPath);
@@ -95,7 +98,8 @@ internal sealed class SearchCommand : Command
                 env.Output.WriteLine();
                 var model = outcome.ModelSaved ? $"selected model {outcome.ModelPath}"
                     : outcome.SavedBy is { } by ? $"the selected model was saved by worker {by} (its record at {outcome.SavedAt})" : "no selected model saved by this search";
-                env.Output.WriteLine($"Data         {Text.Count(outcome.TrainingRows)} training, {Text.Count(outcome.ValidationRows)} validation and {Text.Count(outcome.TestRows)} sealed test rows; {model}");
+                var leftOut = outcome.LeftOut > 0 ? $" ({Text.Count(outcome.LeftOut)} more left out by --max-split-rows)" : "";
+                env.Output.WriteLine($"Data         {Text.Count(outcome.TrainingRows)} training, {Text.Count(outcome.ValidationRows)} validation and {Text.Count(outcome.TestRows)} sealed test rows{leftOut}; {model}");
                 env.Output.WriteLine($"Next         'accountant unseal {outcome.Statement.Holdout.Name}' scores the selected model on the sealed test set, once.");
             }
 
