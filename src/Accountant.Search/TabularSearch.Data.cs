@@ -99,7 +99,11 @@ public sealed partial class TabularSearch
                 throw AccountantException.BadArguments("--test-fraction must be at least 0 and below 1 (default 0.2).");
             }
 
-            if (o.MaxSplitRows < 2) throw AccountantException.BadArguments("--max-split-rows must be at least 2 (default 1,000,000).");
+            for (var part = 0; part < 3; part++)
+            {
+                if (o.Caps[part] < 2) throw AccountantException.BadArguments($"{TabularSearchOptions.CapOptions[part]} must be at least 2 (defaults 1,000,000 training and 200,000 validation and test rows).");
+            }
+
             if (o.HashBits is < 4 or > 20) throw AccountantException.BadArguments("--hash-bits must be between 4 and 20 (default 12: 4,096 slots per hashed column).");
 
             var clock = Stopwatch.StartNew();
@@ -159,10 +163,10 @@ public sealed partial class TabularSearch
             var plans = new List<SplitPlan>
             {
                 SplitPlan.Fractions(stratify ? Counts(survey) : [survey.Rows], stratify ? classes : ["(all rows)"],
-                    validationSource is null ? o.ValidationFraction : 0, testSource is null ? o.TestFraction : 0, o.MaxSplitRows, stratify),
+                    validationSource is null ? o.ValidationFraction : 0, testSource is null ? o.TestFraction : 0, o.Caps, stratify),
             };
-            if (validationSource is not null) plans.Add(SplitPlan.Whole(Counts(surveys[1]), Part.Validation, o.MaxSplitRows));
-            if (testSource is not null) plans.Add(SplitPlan.Whole(Counts(surveys[^1]), Part.Test, o.MaxSplitRows));
+            if (validationSource is not null) plans.Add(SplitPlan.Whole(Counts(surveys[1]), Part.Validation, o.Caps));
+            if (testSource is not null) plans.Add(SplitPlan.Whole(Counts(surveys[^1]), Part.Test, o.Caps));
 
             // Pass 2: each row to its part; only the parts this load needs are kept.
             var features = survey.Features;
@@ -219,7 +223,7 @@ public sealed partial class TabularSearch
             {
                 if (leftOut[part] > 0 && search)
                 {
-                    note?.Invoke($"the {names[part]} rows are capped at {o.MaxSplitRows:N0} (--max-split-rows): a seeded sample{(stratify ? ", stratified by class," : "")} is kept and {leftOut[part]:N0} are left out of the search");
+                    note?.Invoke($"the {names[part]} rows are capped at {o.Caps[part]:N0} ({TabularSearchOptions.CapOptions[part]}): a seeded sample{(stratify ? ", stratified by class," : "")} is kept and {leftOut[part]:N0} are left out of the search");
                 }
             }
 
@@ -314,7 +318,7 @@ public sealed partial class TabularSearch
 
             var store = new RowStore(Features.Count(f => f.Numeric), Features.Count(f => !f.Numeric), keepIds: false, keepFeatures: true);
             var index = Classes.Select((c, i) => (c, i)).ToDictionary(p => p.c, p => p.i, StringComparer.Ordinal);
-            var plan = SplitPlan.Whole(counts, Part.Validation, long.MaxValue);
+            var plan = SplitPlan.Whole(counts, Part.Validation, [long.MaxValue, long.MaxValue, long.MaxValue]);
             Split(source, survey, plan.Start(0), Task, index, Features, Vocabularies, [new RowStore(0, 0, false, false), store, new RowStore(0, 0, false, false)], [false, true, false], _ => { });
             return store;
         }

@@ -77,7 +77,7 @@ public sealed partial class TabularSearch
         {
             // The plan exists (checked before the data was read), so its holdout does: this compares, and writes nothing.
             plan = existing!;
-            holdout = book.EnsureHoldout(holdoutName, prepared.ValidationExamples(), prepared.Metric, prepared.LossRange);
+            holdout = Timings.Account(() => book.EnsureHoldout(holdoutName, prepared.ValidationExamples(), prepared.Metric, prepared.LossRange));
             var open = board.Tasks(plan).Count(t => t.State != TaskState.Done);
             if (open > 0)
             {
@@ -86,14 +86,14 @@ public sealed partial class TabularSearch
         }
         else
         {
-            holdout = book.EnsureHoldout(holdoutName, prepared.ValidationExamples(), prepared.Metric, prepared.LossRange);
+            holdout = Timings.Account(() => book.EnsureHoldout(holdoutName, prepared.ValidationExamples(), prepared.Metric, prepared.LossRange));
             var schedule = new SharedSchedule(options, space, holdout.Metric.HigherIsBetter());
-            plan = board.OpenPlan(share, holdout.Name, settings.Json, schedule.FirstStage());
+            plan = Timings.Account(() => board.OpenPlan(share, holdout.Name, settings.Json, schedule.FirstStage()));
             settings.Check(plan);
         }
 
-        var fitted = new Fitted(_ml, prepared);
-        var runner = new Runner(book, holdout, fitted, options.Guard, share, options.Seed);
+        var fitted = Timings.Featurize(() => new Fitted(_ml, prepared));
+        var runner = new Runner(book, holdout, fitted, options.Guard, share, options.Seed, Timings);
         var worker = $"{Environment.MachineName}-{Environment.ProcessId}-{Convert.ToHexStringLower(RandomNumberGenerator.GetBytes(3))}";
         var total = new SharedSchedule(options, space, holdout.Metric.HigherIsBetter()).Total;
         var gate = new object(); // the store's connection is used by one thread at a time: the worker, or a lease renewal
@@ -109,10 +109,11 @@ public sealed partial class TabularSearch
             outcome = Work(runner, plan, worker, options.Lease, schedule, gate, progress, note, cancel);
         }
 
-        var statement = book.Statement(holdout.Name, options.Statement);
+        var statement = Timings.Account(() => book.Statement(holdout.Name, options.Statement));
         var (modelPath, recordPath) = Paths(options, holdout.Name);
         var closing = outcome.Cancelled ? null : Close(runner, plan, worker, options, statement, modelPath, recordPath, gate, note, cancel);
         if (!outcome.Cancelled) runner.Report(progress, total, total, "done", board.BestScore(plan, holdout));
+        Timings.Stop();
         var selectedBy = statement.Best is { } best ? board.Tasks(plan).FirstOrDefault(t => t.LookNumber == best.Number)?.CompletedBy : null;
         return Outcome(options, fitted, statement, outcome with { Cancelled = outcome.Cancelled || cancel.IsCancellationRequested }, modelPath, recordPath) with
         {
@@ -133,8 +134,7 @@ public sealed partial class TabularSearch
             double? best;
             lock (gate)
             {
-                claim = board.Claim(plan, worker, lease);
-                best = board.BestScore(plan, runner.Holdout);
+                (claim, best) = runner.Timings.Account(() => (board.Claim(plan, worker, lease), board.BestScore(plan, runner.Holdout)));
             }
 
             if (claim.Task is not { } task)
@@ -155,7 +155,7 @@ public sealed partial class TabularSearch
             var trained = Renewing(gate, lease, () => board.Renew(plan, task.Number, worker, lease),
                 () => runner.Train(configuration, task.Adaptive, task.Fraction, task.Stage));
             Look? look;
-            lock (gate) look = runner.Book.CompleteTask(plan, task.Number, worker, trained.Input, schedule.Promote);
+            lock (gate) look = runner.Timings.Account(() => runner.Book.CompleteTask(plan, task.Number, worker, trained.Input, schedule.Promote));
             if (look is null)
             {
                 note?.Invoke($"task {task.Number} was completed by another worker while this one trained it (this worker's lease had run out); this worker's score was dropped, not recorded and not used, so the configuration counts once");
@@ -350,7 +350,9 @@ public sealed partial class TabularSearch
                 ("seed", o.Seed.ToString(CultureInfo.InvariantCulture), "--seed"),
                 ("validationFraction", Number(o.ValidationFraction), "--validation-fraction"),
                 ("testFraction", Number(o.TestFraction), "--test-fraction"),
-                ("maxSplitRows", o.MaxSplitRows.ToString(CultureInfo.InvariantCulture), "--max-split-rows"),
+                ("maxTrainingRows", o.MaxTrainingRows.ToString(CultureInfo.InvariantCulture), "--max-training-rows"),
+                ("maxValidationRows", o.MaxValidationRows.ToString(CultureInfo.InvariantCulture), "--max-validation-rows"),
+                ("maxTestRows", o.MaxTestRows.ToString(CultureInfo.InvariantCulture), "--max-test-rows"),
                 ("hashBits", o.HashBits.ToString(CultureInfo.InvariantCulture), "--hash-bits"),
                 ("strategy", o.Strategy, "--strategy"),
                 ("looks", o.Looks.ToString(CultureInfo.InvariantCulture), "--looks"),

@@ -49,12 +49,21 @@ public sealed record TabularSearchOptions
     public string? SearchLabel { get; init; }
 
     /// <summary>
-    /// The most rows each part (training, validation, test) keeps; a larger part keeps a seeded sample of this many,
-    /// stratified by class, and the rest are left out (said on stderr and in the search record). Bounds memory.
+    /// The most training rows kept; more keep a seeded sample of this many, stratified by class, and the rest are left out
+    /// (said on stderr and in the search record). With the two below, bounds the memory a search of any file takes.
     /// </summary>
-    public long MaxSplitRows { get; init; } = DefaultMaxSplitRows;
+    public long MaxTrainingRows { get; init; } = 1_000_000;
 
-    public const long DefaultMaxSplitRows = 1_000_000;
+    /// <summary>The most validation rows (the holdout) kept, as <see cref="MaxTrainingRows"/> for training rows.</summary>
+    public long MaxValidationRows { get; init; } = 200_000;
+
+    /// <summary>The most sealed test rows kept, as <see cref="MaxTrainingRows"/> for training rows.</summary>
+    public long MaxTestRows { get; init; } = 200_000;
+
+    /// <summary>The caps of training, validation and test, in that order, and their options.</summary>
+    internal long[] Caps => [MaxTrainingRows, MaxValidationRows, MaxTestRows];
+
+    internal static readonly string[] CapOptions = ["--max-training-rows", "--max-validation-rows", "--max-test-rows"];
 
     /// <summary>Bits of the hash a categorical column with more than <see cref="Featurizer.MaxLevels"/> training values is hashed to.</summary>
     public int HashBits { get; init; } = Featurizer.DefaultHashBits;
@@ -77,7 +86,7 @@ public sealed record TabularSearchOutcome(
     Statement Statement, SearchOutcome Search, TaskKind Task, bool TaskInferred, string ModelPath, string RecordPath,
     int TrainingRows, int ValidationRows, int TestRows)
 {
-    /// <summary>Rows the row cap (<see cref="TabularSearchOptions.MaxSplitRows"/>) left out of the search.</summary>
+    /// <summary>Rows the caps (<see cref="TabularSearchOptions.MaxTrainingRows"/> and the others) left out of the search.</summary>
     public long LeftOut { get; init; }
 
     /// <summary>Whether this process saved the selected model and its record (a shared worker saves them only when it trained the selected look).</summary>
@@ -130,6 +139,9 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
 {
     private readonly MLContext _ml = new(seed: 1);
 
+    /// <summary>Where the last <see cref="Run"/> of this object spent its time.</summary>
+    public SearchTimings Timings { get; private set; } = new();
+
     public static string DefaultHoldoutName(string dataPath) => Path.GetFileNameWithoutExtension(dataPath) + "-validation";
 
     /// <summary>
@@ -154,15 +166,16 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             throw AccountantException.BadArguments("a shared search reads its rows from a file every worker has; rows made in memory cannot be shared.");
         }
 
+        Timings = new SearchTimings();
         CheckFinish(options);
-        var prepared = Prepared.Load(options, note, progress);
+        var prepared = Timings.Read(() => Prepared.Load(options, note, progress));
         var task = prepared.Task;
         var space = options.SpacePath is { } spacePath ? SpaceFile.Read(spacePath, task) : TrainerCatalog.DefaultSpace(task);
         var name = options.HoldoutName ?? DefaultHoldoutName(options.DataPath);
         if (options.Share is not null) return RunShared(options, prepared, space, name, progress, note, cancel);
-        var holdout = book.EnsureHoldout(name, prepared.ValidationExamples(), prepared.Metric, prepared.LossRange);
-        var fitted = new Fitted(_ml, prepared);
-        var runner = new Runner(book, holdout, fitted, options.Guard, options.SearchLabel ?? $"search-{options.Strategy}-seed{options.Seed}", options.Seed);
+        var holdout = Timings.Account(() => book.EnsureHoldout(name, prepared.ValidationExamples(), prepared.Metric, prepared.LossRange));
+        var fitted = Timings.Featurize(() => new Fitted(_ml, prepared));
+        var runner = new Runner(book, holdout, fitted, options.Guard, options.SearchLabel ?? $"search-{options.Strategy}-seed{options.Seed}", options.Seed, Timings);
         var outcome = options.Strategy switch
         {
             "halving" => runner.Halving(space, options.Looks, options.Seed, progress, cancel),
@@ -172,7 +185,7 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             _ => throw AccountantException.BadArguments($"unknown strategy '{options.Strategy}'; use random, grid, refine or halving."),
         };
 
-        var statement = book.Statement(holdout.Name, options.Statement);
+        var statement = Timings.Account(() => book.Statement(holdout.Name, options.Statement));
         ITransformer? model = null;
         if (statement.Best is { } best && !runner.Models.TryGetValue(best.Number, out model) && best.Stage is null && !outcome.Cancelled)
         {
@@ -189,6 +202,7 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
         // Rows made in memory cannot be rebuilt from a record, so only a search of files leaves one (and its model).
         var saved = selected is not null && options.FromFiles;
         if (saved) Save(options, fitted, holdout.Name, statement.Best!, selected!.Model, modelPath, recordPath);
+        Timings.Stop();
         return Outcome(options, fitted, statement, outcome, modelPath, recordPath) with { ModelSaved = saved, Selected = selected };
     }
 
@@ -213,15 +227,19 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             ValidationPath = options.ValidationPath is null ? null : Path.GetFullPath(options.ValidationPath),
             TestPath = options.TestPath is null ? null : Path.GetFullPath(options.TestPath),
             Holdout = holdout, Look = best.Number, Configuration = best.Configuration, ModelPath = Path.GetFullPath(modelPath),
-            Featurizer = p.Featurizer, Classes = p.Classes, MaxSplitRows = options.MaxSplitRows,
+            Featurizer = p.Featurizer, Classes = p.Classes,
+            MaxTrainingRows = options.MaxTrainingRows, MaxValidationRows = options.MaxValidationRows, MaxTestRows = options.MaxTestRows,
             TrainingRows = p.Training.Count, ValidationRows = p.Validation.Count, TestRows = p.Test.Count, LeftOut = [.. p.LeftOut],
             TestFingerprint = p.TestFingerprint,
         };
         var partial = $".{Environment.ProcessId}-{Guid.NewGuid():N}.part";
-        _ml.Model.Save(model, fitted.Views.Training.Schema, modelPath + partial);
-        File.Move(modelPath + partial, modelPath, overwrite: true);
-        File.WriteAllText(recordPath + partial, JsonSerializer.Serialize(record, SearchRecord.JsonOptions));
-        File.Move(recordPath + partial, recordPath, overwrite: true);
+        Timings.Save(() =>
+        {
+            _ml.Model.Save(model, fitted.Views.Training.Schema, modelPath + partial);
+            File.Move(modelPath + partial, modelPath, overwrite: true);
+            File.WriteAllText(recordPath + partial, JsonSerializer.Serialize(record, SearchRecord.JsonOptions));
+            File.Move(recordPath + partial, recordPath, overwrite: true);
+        });
     }
 
     /// <summary>
@@ -263,8 +281,10 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
         return (prepared.Mean(holdout.LossRange, prepared.Test, predicted), prepared.Test.Count, prepared.TestFingerprint!);
     }
 
-    private sealed class Runner(Bookkeeper book, Holdout holdout, Fitted fitted, GuardSpec? guard, string search, int seed)
+    private sealed class Runner(Bookkeeper book, Holdout holdout, Fitted fitted, GuardSpec? guard, string search, int seed, SearchTimings timings)
     {
+        public SearchTimings Timings => timings;
+
         public Dictionary<int, ITransformer> Models { get; } = [];
 
         public Bookkeeper Book => book;
@@ -288,7 +308,10 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
         /// nothing. Each training has an ML.NET context of its own seeded from the search's seed, so the same configuration at
         /// the same stage trains the same model whichever process trains it, and in whatever order.
         /// </summary>
-        public Trained Train(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage)
+        public Trained Train(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage) =>
+            timings.Train(() => TrainNow(configuration, adaptive, fraction, stage));
+
+        private Trained TrainNow(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage)
         {
             var started = _clock.Elapsed;
             var p = fitted.P;
@@ -322,7 +345,7 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
         private (Look Look, double? Told) Evaluate(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage)
         {
             var trained = Train(configuration, adaptive, fraction, stage);
-            return Keep(trained, book.RecordMany(holdout.Name, [trained.Input])[0]);
+            return Keep(trained, timings.Account(() => book.RecordMany(holdout.Name, [trained.Input])[0]));
         }
 
         /// <summary>Notes a recorded look of this process: its model is kept while it is this process's best.</summary>
@@ -422,7 +445,9 @@ public sealed class SearchRecord
     public string ModelPath { get; set; } = "";
     public Featurizer Featurizer { get; set; } = new();
     public List<string> Classes { get; set; } = [];
-    public long MaxSplitRows { get; set; } = TabularSearchOptions.DefaultMaxSplitRows;
+    public long MaxTrainingRows { get; set; }
+    public long MaxValidationRows { get; set; }
+    public long MaxTestRows { get; set; }
     public int TrainingRows { get; set; }
     public int ValidationRows { get; set; }
     public int TestRows { get; set; }
@@ -437,7 +462,7 @@ public sealed class SearchRecord
     {
         DataPath = DataPath, Label = Label, Task = Enum.Parse<TaskKind>(Task, ignoreCase: true), Ignore = Ignore, IdColumn = IdColumn, Seed = Seed,
         ValidationFraction = ValidationFraction, TestFraction = TestFraction, ValidationPath = ValidationPath, TestPath = TestPath, HoldoutName = Holdout,
-        MaxSplitRows = MaxSplitRows, HashBits = Featurizer.HashBits,
+        MaxTrainingRows = MaxTrainingRows, MaxValidationRows = MaxValidationRows, MaxTestRows = MaxTestRows, HashBits = Featurizer.HashBits,
     };
 
     public static SearchRecord Read(string path)

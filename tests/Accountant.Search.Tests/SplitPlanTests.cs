@@ -10,6 +10,8 @@ namespace Accountant.Search.Tests;
 /// </summary>
 public sealed class SplitPlanTests
 {
+    private static readonly long[] Uncapped = [long.MaxValue, long.MaxValue, long.MaxValue];
+
     /// <summary>The parts a plan gives rows in file order (each row's class given), from a seed.</summary>
     private static List<Part> Assign(SplitPlan plan, IReadOnlyList<int> labels, ulong seed)
     {
@@ -22,7 +24,7 @@ public sealed class SplitPlanTests
     {
         // 1,000 rows sorted by class, 700 : 250 : 50, as files often are.
         var labels = Enumerable.Range(0, 1000).Select(i => i < 700 ? 0 : i < 950 ? 1 : 2).ToList();
-        var plan = SplitPlan.Fractions([700, 250, 50], ["a", "b", "c"], 0.2, 0.2, long.MaxValue, stratify: true);
+        var plan = SplitPlan.Fractions([700, 250, 50], ["a", "b", "c"], 0.2, 0.2, Uncapped, stratify: true);
         var parts = Assign(plan, labels, 5);
         Assert.Equal(parts, Assign(plan, labels, 5));
         Assert.NotEqual(parts, Assign(plan, labels, 6));
@@ -37,7 +39,7 @@ public sealed class SplitPlanTests
         Assert.DoesNotContain(Part.LeftOut, parts);
         // Spread through the file: the validation rows of class "a" are not its first 140 rows.
         Assert.NotEqual(Enumerable.Range(0, 140), Enumerable.Range(0, 700).Where(i => parts[i] == Part.Validation));
-        var rare = Assert.Throws<AccountantException>(() => SplitPlan.Fractions([700, 250, 1], ["a", "b", "rare"], 0.2, 0.2, long.MaxValue, stratify: true));
+        var rare = Assert.Throws<AccountantException>(() => SplitPlan.Fractions([700, 250, 1], ["a", "b", "rare"], 0.2, 0.2, Uncapped, stratify: true));
         Assert.Contains("'rare' has only 1 example", rare.Message);
     }
 
@@ -48,7 +50,7 @@ public sealed class SplitPlanTests
         // validation is v/n = 0.2 (SE = sqrt(0.2·0.8/R) = 0.00283); rows 0 and 19 together in validation:
         // v(v − 1)/(n(n − 1)) = 12/380 = 0.03158 (SE 0.00124). Every check at 4 SE (21 checks: a false alarm about 1 in 750 runs; the seeds are fixed, so a run is repeatable).
         const int n = 20, runs = 20_000;
-        var plan = SplitPlan.Fractions([n], ["all"], 0.2, 0.2, long.MaxValue, stratify: false);
+        var plan = SplitPlan.Fractions([n], ["all"], 0.2, 0.2, Uncapped, stratify: false);
         var labels = new int[n];
         var inValidation = new int[n];
         var bothEnds = 0;
@@ -72,7 +74,7 @@ public sealed class SplitPlanTests
         // 10,000 rows, 7,001 : 2,500 : 499; validation and test 0.2 each: validation 1,400 + 500 + 100 = 2,000 rows, capped
         // at 1,000. Shares 1,400·1,000/2,000 = 700, 250, 50 exactly; training 4,201 + 1,500 + 299 = 6,000 capped at 1,000:
         // shares 700.17, 250, 49.83 → floors 700, 250, 49, and the one row left goes to the largest remainder (0.83: class 2).
-        var plan = SplitPlan.Fractions([7001, 2500, 499], ["a", "b", "c"], 0.2, 0.2, 1000, stratify: true);
+        var plan = SplitPlan.Fractions([7001, 2500, 499], ["a", "b", "c"], 0.2, 0.2, [1000, 1000, 1000], stratify: true);
         Assert.Equal((700, 250, 50), (plan.Count(0, Part.Validation), plan.Count(1, Part.Validation), plan.Count(2, Part.Validation)));
         Assert.Equal((700, 250, 50), (plan.Count(0, Part.Training), plan.Count(1, Part.Training), plan.Count(2, Part.Training)));
         Assert.Equal((1000L, 1000L, 1000L), (plan.Count(Part.Training), plan.Count(Part.Validation), plan.Count(Part.Test)));

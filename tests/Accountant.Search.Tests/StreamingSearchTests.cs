@@ -119,7 +119,7 @@ public sealed class StreamingSearchTests() : TempFolder("accountant-stream-")
         var data = Wide(70_000);
         var reports = new List<SearchProgress>();
         var notes = new List<string>();
-        var options = new TabularSearchOptions { DataPath = data, Label = "label", IdColumn = "id", Looks = 1, Seed = 3, SpacePath = QuickSpace(), MaxSplitRows = 1000 };
+        var options = new TabularSearchOptions { DataPath = data, Label = "label", IdColumn = "id", Looks = 1, Seed = 3, SpacePath = QuickSpace(), MaxTrainingRows = 1000, MaxValidationRows = 1000, MaxTestRows = 1000 };
         TabularSearchOutcome outcome;
         using (var book = Bookkeeper.Create(Ledger))
         {
@@ -127,7 +127,7 @@ public sealed class StreamingSearchTests() : TempFolder("accountant-stream-")
         }
 
         Assert.Equal((1000, 1000, 1000, 67_000L), (outcome.TrainingRows, outcome.ValidationRows, outcome.TestRows, outcome.LeftOut));
-        Assert.Contains(notes, n => n.StartsWith("the training rows are capped at 1,000 (--max-split-rows): a seeded sample, stratified by class, is kept and 41,000 are left out", StringComparison.Ordinal));
+        Assert.Contains(notes, n => n.StartsWith("the training rows are capped at 1,000 (--max-training-rows): a seeded sample, stratified by class, is kept and 41,000 are left out", StringComparison.Ordinal));
         // Both passes reported their progress, ending at the whole file, before the first look.
         var reading = reports.Where(r => r.Reading is not null).ToList();
         Assert.Contains(reading, r => r.Current.Contains("pass 1 of 2", StringComparison.Ordinal) && r.Reading == 1.0);
@@ -135,7 +135,8 @@ public sealed class StreamingSearchTests() : TempFolder("accountant-stream-")
         Assert.All(reading, r => Assert.Equal(0, r.Done));
 
         var record = SearchRecord.Read(outcome.RecordPath);
-        Assert.Equal((1000L, 1000, 1000, 1000), (record.MaxSplitRows, record.TrainingRows, record.ValidationRows, record.TestRows));
+        Assert.Equal((1000L, 1000L, 1000L), (record.MaxTrainingRows, record.MaxValidationRows, record.MaxTestRows));
+        Assert.Equal((1000, 1000, 1000), (record.TrainingRows, record.ValidationRows, record.TestRows));
         Assert.Equal([41_000L, 13_000, 13_000], record.LeftOut);
         using var reader = Bookkeeper.Open(Ledger);
         var holdout = reader.Holdout("wide-validation");

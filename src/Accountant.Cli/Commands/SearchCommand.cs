@@ -23,7 +23,11 @@ internal sealed class SearchCommand : Command
         var testFraction = new Option<double>("--test-fraction") { Description = "Share of rows sealed as the test set.", DefaultValueFactory = _ => 0.2 };
         var validation = new Option<string?>("--validation") { Description = "A separate validation file (same columns)." };
         var test = new Option<string?>("--test") { Description = "A separate test file to seal (same columns)." };
-        var maxSplitRows = new Option<long>("--max-split-rows") { Description = "The most rows each of training, validation and test keeps: a larger one keeps a seeded sample of this many, stratified by class (bounds memory on large files).", DefaultValueFactory = _ => TabularSearchOptions.DefaultMaxSplitRows };
+        var defaults = new TabularSearchOptions { DataPath = "", Label = "" };
+        Option<long> Cap(string name, string part, long value) => new(name) { Description = $"The most {part} rows kept: more keep a seeded sample of this many, stratified by class, and the rest are left out (bounds memory on large files).", DefaultValueFactory = _ => value };
+        var maxTraining = Cap("--max-training-rows", "training", defaults.MaxTrainingRows);
+        var maxValidation = Cap("--max-validation-rows", "validation (holdout)", defaults.MaxValidationRows);
+        var maxTest = Cap("--max-test-rows", "sealed test", defaults.MaxTestRows);
         var hashBits = new Option<int>("--hash-bits") { Description = "A categorical column with more than 50 training values is hashed into 2^BITS slots.", DefaultValueFactory = _ => Featurizer.DefaultHashBits };
         var space = new Option<string?>("--space") { Description = "A search space JSON file (see --print-space)." };
         var printSpace = new Option<bool>("--print-space") { Description = "Print the default search space for --task (binary by default) and stop." };
@@ -43,7 +47,7 @@ internal sealed class SearchCommand : Command
         var twoSided = Common.TwoSided();
         var format = Common.Format("table", "json", "markdown");
         Arguments.Add(data);
-        foreach (var option in new Option[] { label, task, ignore, idColumn, seed, validationFraction, testFraction, validation, test, maxSplitRows, hashBits, space, printSpace, strategy, looks, guard, name, modelOut, plot, quiet, share, finish, lease, confidence, tolerance, twoSided, format })
+        foreach (var option in new Option[] { label, task, ignore, idColumn, seed, validationFraction, testFraction, validation, test, maxTraining, maxValidation, maxTest, hashBits, space, printSpace, strategy, looks, guard, name, modelOut, plot, quiet, share, finish, lease, confidence, tolerance, twoSided, format })
         {
             Options.Add(option);
         }
@@ -68,7 +72,7 @@ internal sealed class SearchCommand : Command
                 Looks = r.GetValue(looks), Guard = r.GetValue(guard) is { } g ? Guards.GuardSpec.Parse(g) : null, HoldoutName = r.GetValue(name),
                 ModelPath = r.GetValue(modelOut), Statement = Common.StatementOptions(r, confidence, tolerance, twoSided),
                 Share = r.GetValue(share), Lease = Duration(r.GetValue(lease)!, "--lease"), Finish = r.GetValue(finish),
-                MaxSplitRows = r.GetValue(maxSplitRows), HashBits = r.GetValue(hashBits),
+                MaxTrainingRows = r.GetValue(maxTraining), MaxValidationRows = r.GetValue(maxValidation), MaxTestRows = r.GetValue(maxTest), HashBits = r.GetValue(hashBits),
             };
             var plotPath = r.GetValue(plot);
             if (plotPath is not null) StatementPlot.CheckPath(plotPath);
@@ -98,7 +102,7 @@ internal sealed class SearchCommand : Command
                 env.Output.WriteLine();
                 var model = outcome.ModelSaved ? $"selected model {outcome.ModelPath}"
                     : outcome.SavedBy is { } by ? $"the selected model was saved by worker {by} (its record at {outcome.SavedAt})" : "no selected model saved by this search";
-                var leftOut = outcome.LeftOut > 0 ? $" ({Text.Count(outcome.LeftOut)} more left out by --max-split-rows)" : "";
+                var leftOut = outcome.LeftOut > 0 ? $" ({Text.Count(outcome.LeftOut)} more left out by the --max-*-rows caps)" : "";
                 env.Output.WriteLine($"Data         {Text.Count(outcome.TrainingRows)} training, {Text.Count(outcome.ValidationRows)} validation and {Text.Count(outcome.TestRows)} sealed test rows{leftOut}; {model}");
                 env.Output.WriteLine($"Next         'accountant unseal {outcome.Statement.Holdout.Name}' scores the selected model on the sealed test set, once.");
             }

@@ -8,7 +8,7 @@ internal enum Part
     Training = 0,
     Validation = 1,
     Test = 2,
-    /// <summary>Left out: beyond a split's row cap (<c>--max-split-rows</c>).</summary>
+    /// <summary>Left out: beyond a part's row cap (<c>--max-training-rows</c> and the others).</summary>
     LeftOut = 3,
 }
 
@@ -36,7 +36,7 @@ internal sealed class SplitPlan
     /// Splits by fractions. With <paramref name="stratify"/>, each class is split on its own and must give every part
     /// that gets rows at least one; without, <paramref name="counts"/> has one entry (all rows).
     /// </summary>
-    public static SplitPlan Fractions(IReadOnlyList<long> counts, IReadOnlyList<string> names, double validation, double test, long cap, bool stratify)
+    public static SplitPlan Fractions(IReadOnlyList<long> counts, IReadOnlyList<string> names, double validation, double test, IReadOnlyList<long> caps, bool stratify)
     {
         var quotas = new long[counts.Count][];
         for (var c = 0; c < counts.Count; c++)
@@ -57,22 +57,24 @@ internal sealed class SplitPlan
             quotas[c] = [Math.Max(0, n - v - t), v, t, 0];
         }
 
-        return Capped(quotas, cap);
+        return Capped(quotas, caps);
     }
 
     /// <summary>Every row of a source to one part (a separate validation or test file), capped.</summary>
-    public static SplitPlan Whole(IReadOnlyList<long> counts, Part part, long cap)
+    public static SplitPlan Whole(IReadOnlyList<long> counts, Part part, IReadOnlyList<long> caps)
     {
         var quotas = counts.Select(n => { var q = new long[4]; q[(int)part] = n; return q; }).ToArray();
-        return Capped(quotas, cap);
+        return Capped(quotas, caps);
     }
 
-    private static SplitPlan Capped(long[][] quotas, long cap)
+    /// <summary>Caps each part (training, validation, test: <paramref name="caps"/> in that order).</summary>
+    private static SplitPlan Capped(long[][] quotas, IReadOnlyList<long> caps)
     {
         var capped = new long[3];
         foreach (var part in new[] { Part.Training, Part.Validation, Part.Test })
         {
             var p = (int)part;
+            var cap = caps[p];
             var total = quotas.Sum(q => q[p]);
             if (total <= cap) continue;
             // Hamilton's largest-remainder apportionment of the cap over the classes, in proportion to their rows.
