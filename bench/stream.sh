@@ -4,7 +4,7 @@
 # their own: ML.NET's text loader reading the file alone, and a search of one look on it (two passes, split, featurize,
 # train, record). Prints the rows/s ratio of the two, each one's peak resident memory (/usr/bin/time %M, and VmHWM seen by
 # the process), and the share of the search's wall time spent in accounting (ledger writes and reads, the statement).
-# Deletes the files after. About 15 minutes on 2 cores when nothing else runs; needs about 6 GB of free disk.
+# Deletes the files after. About 5 minutes on 2 cores (measured under load); needs about 6 GB of free disk.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 export DOTNET_CLI_TELEMETRY_OPTOUT=1 DOTNET_NOLOGO=1

@@ -86,7 +86,12 @@ public sealed class FeatureHashingTests() : TempFolder("accountant-hash-")
         var outcome = search.Run(new TabularSearchOptions { DataPath = data, TestPath = test, Label = "sold_out", IdColumn = "day", Looks = 1, SpacePath = space }, note: notes.Add);
 
         // Hashed, said on stderr and in the record: 12 bits, 4,096 slots and one for a missing value.
-        Assert.Contains(notes, n => n.StartsWith("the column 'shop' has ", StringComparison.Ordinal) && n.Contains("hashed into 4,096 slots (MurmurHash3, --hash-bits 12)", StringComparison.Ordinal));
+        var hashedNote = Assert.Single(notes, n => n.StartsWith("the column 'shop' has ", StringComparison.Ordinal));
+        Assert.Contains("hashed into 4,096 slots (MurmurHash3, --hash-bits 12)", hashedNote);
+        // The shops among the 24,000 training rows: draws of 10,000 equally likely shops, of which
+        // 10,000·(1 − e^(−2.4)) = 9,093 are expected to appear (occupancy; SD about 25).
+        var distinct = int.Parse(hashedNote["the column 'shop' has ".Length..].Split(' ')[0], NumberStyles.AllowThousands, CultureInfo.InvariantCulture);
+        Assert.InRange(distinct, 8_950, 9_250);
         var record = SearchRecord.Read(outcome.RecordPath);
         Assert.Equal(["shop", "noise"], record.Featurizer.Columns);
         Assert.Equal([true, false], record.Featurizer.Hashed);
