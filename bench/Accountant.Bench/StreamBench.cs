@@ -103,17 +103,20 @@ internal static class StreamBench
         var outcome = search.Run(new TabularSearchOptions { DataPath = path, Label = "label", Task = Accountant.Search.Data.TaskKind.Binary, Looks = 1, Seed = 1, SpacePath = space },
             new Progress(), note => Console.Error.WriteLine("accountant: " + note));
         var t = search.Timings;
-        Console.WriteLine($"search_rows {outcome.TrainingRows + outcome.ValidationRows + outcome.TestRows + outcome.LeftOut}");
-        Console.WriteLine($"search_parts {outcome.TrainingRows} {outcome.ValidationRows} {outcome.TestRows} {outcome.LeftOut}");
-        Console.WriteLine($"search_seconds {t.Total.TotalSeconds:F2}");
-        Console.WriteLine($"search_reading_seconds {t.Reading.TotalSeconds:F2}");
-        Console.WriteLine($"search_featurizing_seconds {t.Featurizing.TotalSeconds:F2}");
-        Console.WriteLine($"search_training_seconds {t.Training.TotalSeconds:F2}");
-        Console.WriteLine($"search_accounting_seconds {t.Accounting.TotalSeconds:F3}");
-        Console.WriteLine($"search_saving_seconds {t.Saving.TotalSeconds:F2}");
-        Console.WriteLine($"search_accounting_share {t.Accounting.TotalSeconds / t.Total.TotalSeconds:F4}");
-        Console.WriteLine($"search_best_error {outcome.Statement.Best!.Score:F4}");
-        Console.WriteLine($"search_vmhwm_kb {PeakKb()}");
+        string S(TimeSpan x, string format = "F2") => x.TotalSeconds.ToString(format, CultureInfo.InvariantCulture);
+        foreach (var (name, value) in new[]
+        {
+            ("rows", $"{outcome.TrainingRows + outcome.ValidationRows + outcome.TestRows + outcome.LeftOut}"),
+            ("parts", $"{outcome.TrainingRows} {outcome.ValidationRows} {outcome.TestRows} {outcome.LeftOut}"),
+            ("seconds", S(t.Total)), ("reading_seconds", S(t.Reading)), ("featurizing_seconds", S(t.Featurizing)),
+            ("training_seconds", S(t.Training)), ("accounting_seconds", S(t.Accounting, "F3")), ("saving_seconds", S(t.Saving)),
+            ("accounting_share", (t.Accounting.TotalSeconds / t.Total.TotalSeconds).ToString("F4", CultureInfo.InvariantCulture)),
+            ("best_error", outcome.Statement.Best!.Score.ToString("F4", CultureInfo.InvariantCulture)), ("vmhwm_kb", $"{PeakKb()}"),
+        })
+        {
+            Console.WriteLine($"search_{name} {value}");
+        }
+
         return 0;
     }
 
