@@ -341,12 +341,22 @@ public sealed partial class TabularSearch
             var row = new Row();
             var values = new float[binding.Entries];
             var indices = new int[binding.Entries];
+            var dense = binding.Dense ? new float[binding.Width] : null;
             var count = order?.Length ?? store.Count;
             for (var i = 0; i < count; i++)
             {
                 var r = order?[i] ?? i;
-                binding.Transform(store, r, values, indices);
-                row.Features = new VBuffer<float>(binding.Width, values.Length, values, indices);
+                if (dense is not null)
+                {
+                    binding.Transform(store, r, dense, values, indices);
+                    row.Features = new VBuffer<float>(binding.Width, dense);
+                }
+                else
+                {
+                    binding.Transform(store, r, values, indices);
+                    row.Features = new VBuffer<float>(binding.Width, values.Length, values, indices);
+                }
+
                 if (p.Task == TaskKind.Regression) row.Regression = (float)store.Values[r];
                 else
                 {

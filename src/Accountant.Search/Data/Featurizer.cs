@@ -115,8 +115,21 @@ public sealed class Featurizer
     /// <summary>Where each column's slots start, and which slot each stored value takes.</summary>
     internal sealed record Binding(Featurizer Featurizer, int[] Offsets, int[] Ordinals, int[][] Slots, int[] Missing, int Width)
     {
+        /// <summary>Vectors at most this wide are made dense (the trainers' quickest path); wider ones (hashed columns) sparse.</summary>
+        public const int DenseWidth = 512;
+
+        public bool Dense => Width <= DenseWidth;
+
         /// <summary>One nonzero-or-numeric entry per column: the most a row's sparse vector holds.</summary>
         public int Entries => Offsets.Length;
+
+        /// <summary>Row <paramref name="row"/> of <paramref name="store"/> as a dense vector of <see cref="Width"/> values.</summary>
+        public void Transform(RowStore store, int row, float[] dense, float[] values, int[] indices)
+        {
+            Transform(store, row, values, indices);
+            Array.Clear(dense);
+            for (var c = 0; c < indices.Length; c++) dense[indices[c]] = values[c];
+        }
 
         /// <summary>Row <paramref name="row"/> of <paramref name="store"/> as a sparse vector: ascending slots and their values.</summary>
         public void Transform(RowStore store, int row, float[] values, int[] indices)
