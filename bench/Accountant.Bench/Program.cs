@@ -21,12 +21,15 @@ return mode switch
     "ingest-postgres" => PostgresIngest.Run(rest),
     "ledger-scores" => LedgerScores(rest),
     "ledger-bitsets" => LedgerBitsets(rest),
+    "stream-generate" => StreamBench.Generate(rest),
+    "stream-mlnet" => StreamBench.MlNet(rest),
+    "stream-search" => StreamBench.Search(rest),
     _ => Usage(),
 };
 
 static int Usage()
 {
-    Console.Error.WriteLine("usage: Accountant.Bench peak | bootstrap K N B SEED MATRIX_FILE | ingest DIR | ingest-postgres CONNECTION_STRING | ledger-scores PATH LOOKS | ledger-bitsets PATH K N");
+    Console.Error.WriteLine("usage: Accountant.Bench peak | bootstrap K N B SEED MATRIX_FILE | ingest DIR | ingest-postgres CONNECTION_STRING | ledger-scores PATH LOOKS | ledger-bitsets PATH K N | stream-generate PATH MB SEED | stream-mlnet PATH | stream-search PATH LEDGER SPACE");
     return 2;
 }
 

@@ -27,7 +27,7 @@ for (var i = 0; i < candidates.Count + 2; i++)
 {
     var adaptive = i >= candidates.Count;
     var (leaves, trees) = adaptive ? (Math.Max(2, bestCandidate.Leaves / 2 + 4 * (i - candidates.Count)), bestCandidate.Trees + 50) : candidates[i];
-    var model = DemoRunner.Featurizer(ml)
+    var model = BakeryScenario.Featurizer(ml)
         .Append(ml.BinaryClassification.Trainers.FastTree(numberOfLeaves: leaves, numberOfTrees: trees, minimumExampleCountPerLeaf: 10))
         .Fit(training);
     var look = book.RecordModel(ml, "loop-validation", model, validation, $"{{\"trainer\":\"fasttree\",\"leaves\":{leaves},\"trees\":{trees}}}",

@@ -38,6 +38,47 @@ public sealed record TabularSearchOptions
     public string? Share { get; init; }
     /// <summary>How long a shared worker's claim lasts unless renewed; the worker renews it every third of this while it trains.</summary>
     public TimeSpan Lease { get; init; } = TimeSpan.FromMinutes(2);
+
+    /// <summary>Rows made in memory in place of <see cref="DataPath"/>'s file (the demo's invented days); <see cref="DataPath"/> then only names them.</summary>
+    public RowSource? Rows { get; init; }
+
+    /// <summary>Validation rows made in memory in place of <see cref="ValidationPath"/>'s file.</summary>
+    public RowSource? ValidationRows { get; init; }
+
+    /// <summary>The label grouping this search's looks in the ledger; by default search-STRATEGY-seedSEED (the share name in a shared search).</summary>
+    public string? SearchLabel { get; init; }
+
+    /// <summary>
+    /// The most training rows kept; more keep a seeded sample of this many, stratified by class, and the rest are left out
+    /// (said on stderr and in the search record). With the two below, bounds the memory a search of any file takes.
+    /// </summary>
+    public long MaxTrainingRows { get; init; } = 1_000_000;
+
+    /// <summary>The most validation rows (the holdout) kept, as <see cref="MaxTrainingRows"/> for training rows.</summary>
+    public long MaxValidationRows { get; init; } = 200_000;
+
+    /// <summary>The most sealed test rows kept, as <see cref="MaxTrainingRows"/> for training rows.</summary>
+    public long MaxTestRows { get; init; } = 200_000;
+
+    /// <summary>The caps of training, validation and test, in that order, and their options.</summary>
+    internal long[] Caps => [MaxTrainingRows, MaxValidationRows, MaxTestRows];
+
+    internal static readonly string[] CapOptions = ["--max-training-rows", "--max-validation-rows", "--max-test-rows"];
+
+    /// <summary>Bits of the hash a categorical column with more than <see cref="Featurizer.MaxLevels"/> training values is hashed to.</summary>
+    public int HashBits { get; init; } = Featurizer.DefaultHashBits;
+
+    /// <summary>With <see cref="Share"/>: only the closing step, saving the selected model of a shared search whose tasks are all done.</summary>
+    public bool Finish { get; init; }
+
+    internal RowSource Data => Rows ?? RowSource.File(DataPath);
+
+    internal RowSource? Validation => ValidationRows ?? (ValidationPath is null ? null : RowSource.File(ValidationPath));
+
+    internal RowSource? Test => TestPath is null ? null : RowSource.File(TestPath);
+
+    /// <summary>Whether every source is a file, so that the sealed test set can be rebuilt from the record later.</summary>
+    internal bool FromFiles => Rows is null && ValidationRows is null;
 }
 
 /// <summary>What a search did, and where it left the selected model.</summary>
@@ -45,24 +86,61 @@ public sealed record TabularSearchOutcome(
     Statement Statement, SearchOutcome Search, TaskKind Task, bool TaskInferred, string ModelPath, string RecordPath,
     int TrainingRows, int ValidationRows, int TestRows)
 {
+    /// <summary>Rows the caps (<see cref="TabularSearchOptions.MaxTrainingRows"/> and the others) left out of the search.</summary>
+    public long LeftOut { get; init; }
+
     /// <summary>Whether this process saved the selected model and its record (a shared worker saves them only when it trained the selected look).</summary>
     public bool ModelSaved { get; init; }
 
     /// <summary>This worker's name in a shared search; null otherwise.</summary>
     public string? SharedWorker { get; init; }
 
-    /// <summary>In a shared search, the worker whose look was selected (it saves the selected model); null otherwise.</summary>
+    /// <summary>In a shared search, the worker whose look was selected; null otherwise.</summary>
     public string? SelectedBy { get; init; }
+
+    /// <summary>In a shared search, the worker that saved the selected model and its record; null while none has.</summary>
+    public string? SavedBy { get; init; }
+
+    /// <summary>In a shared search, where the record unseal reads was written (on <see cref="SavedBy"/>'s machine).</summary>
+    public string? SavedAt { get; init; }
+
+    /// <summary>The selected look's model when this process holds it (it trained that look, or retrained it to save it); null otherwise.</summary>
+    public SelectedModel? Selected { get; init; }
+}
+
+/// <summary>The selected look's model, with what it needs to score further rows (the featurizer fitted on the training rows).</summary>
+public sealed class SelectedModel
+{
+    private readonly MLContext _ml;
+    private readonly TabularSearch.Fitted _fitted;
+
+    internal SelectedModel(MLContext ml, TabularSearch.Fitted fitted, ITransformer model, int look) => (_ml, _fitted, Model, Look) = (ml, fitted, model, look);
+
+    public ITransformer Model { get; }
+
+    /// <summary>The number of the look this model was scored as.</summary>
+    public int Look { get; }
+
+    /// <summary>
+    /// The model's score on other rows with the same columns, in the holdout's metric (error for classification, absolute
+    /// error clipped to the holdout's loss range for regression), and how many rows were scored.
+    /// </summary>
+    public (double Score, int Rows) Score(RowSource rows) => _fitted.Score(_ml, Model, rows);
 }
 
 /// <summary>
-/// A hyperparameter search on the user's own CSV: split (or separate files), featurize on the training rows only, register
-/// the validation rows as the holdout, try configurations by a strategy, record every look (every stage of halving too),
-/// and keep the selected model with a record of how to rebuild its sealed test set.
+/// A hyperparameter search on rows of the user's (a CSV file) or rows made in memory (the demo's invented days): split (or
+/// separate files), featurize on the training rows only, register the validation rows as the holdout, try configurations by
+/// a strategy, record every look (every stage of halving too), and keep the selected model with a record of how to rebuild
+/// its sealed test set. This is the one runner: the demo, a search of one's own and a shared worker all train, predict,
+/// record and keep the best through it.
 /// </summary>
 public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
 {
     private readonly MLContext _ml = new(seed: 1);
+
+    /// <summary>Where the last <see cref="Run"/> of this object spent its time.</summary>
+    public SearchTimings Timings { get; private set; } = new();
 
     public static string DefaultHoldoutName(string dataPath) => Path.GetFileNameWithoutExtension(dataPath) + "-validation";
 
@@ -83,14 +161,21 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
     public TabularSearchOutcome Run(TabularSearchOptions options, IProgress<SearchProgress>? progress = null, Action<string>? note = null, CancellationToken cancel = default)
     {
         if (options.Looks < 1) throw AccountantException.BadArguments("--looks must be at least 1.");
-        var prepared = Prepared.Load(options, note);
+        if (options.Share is not null && !options.FromFiles)
+        {
+            throw AccountantException.BadArguments("a shared search reads its rows from a file every worker has; rows made in memory cannot be shared.");
+        }
+
+        Timings = new SearchTimings();
+        CheckFinish(options);
+        var prepared = Timings.Read(() => Prepared.Load(options, note, progress));
         var task = prepared.Task;
         var space = options.SpacePath is { } spacePath ? SpaceFile.Read(spacePath, task) : TrainerCatalog.DefaultSpace(task);
         var name = options.HoldoutName ?? DefaultHoldoutName(options.DataPath);
         if (options.Share is not null) return RunShared(options, prepared, space, name, progress, note, cancel);
-        var holdout = book.EnsureHoldout(name, prepared.ValidationExamples(), prepared.Metric, prepared.LossRange);
-        var views = new Views(_ml, prepared);
-        var runner = new Runner(_ml, book, holdout, prepared, views, options.Guard, $"search-{options.Strategy}-seed{options.Seed}");
+        var holdout = Timings.Account(() => book.EnsureHoldout(name, prepared.ValidationExamples(), prepared.Metric, prepared.LossRange));
+        var fitted = Timings.Featurize(() => new Fitted(_ml, prepared));
+        var runner = new Runner(book, holdout, fitted, options.Guard, options.SearchLabel ?? $"search-{options.Strategy}-seed{options.Seed}", options.Seed, Timings);
         var outcome = options.Strategy switch
         {
             "halving" => runner.Halving(space, options.Looks, options.Seed, progress, cancel),
@@ -100,51 +185,86 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             _ => throw AccountantException.BadArguments($"unknown strategy '{options.Strategy}'; use random, grid, refine or halving."),
         };
 
-        return Finish(options, prepared, views, runner, holdout, outcome);
-    }
-
-    /// <summary>The statement, and the selected model with its record when this process trained the selected look.</summary>
-    private TabularSearchOutcome Finish(TabularSearchOptions options, Prepared prepared, Views views, Runner runner, Holdout holdout, SearchOutcome outcome)
-    {
-        var task = prepared.Task;
-        var statement = book.Statement(holdout.Name, options.Statement);
-        var modelPath = options.ModelPath ?? Path.Combine(Folder, Safe(holdout.Name) + ".model.zip");
-        var recordPath = Path.Combine(Folder, Safe(holdout.Name) + ".search.json");
-        var saved = false;
-        if (statement.Best is { } best && runner.Models.TryGetValue(best.Number, out var model))
+        var statement = Timings.Account(() => book.Statement(holdout.Name, options.Statement));
+        ITransformer? model = null;
+        if (statement.Best is { } best && !runner.Models.TryGetValue(best.Number, out model) && best.Stage is null && !outcome.Cancelled)
         {
-            saved = true;
-            _ml.Model.Save(model, views.Training.Schema, modelPath);
-            var record = new SearchRecord
-            {
-                DataPath = Path.GetFullPath(options.DataPath), Label = options.Label, Task = task.ToString().ToLowerInvariant(), Ignore = [.. options.Ignore],
-                IdColumn = options.IdColumn, Seed = options.Seed, ValidationFraction = options.ValidationFraction, TestFraction = options.TestFraction,
-                ValidationPath = options.ValidationPath is null ? null : Path.GetFullPath(options.ValidationPath),
-                TestPath = options.TestPath is null ? null : Path.GetFullPath(options.TestPath),
-                Holdout = holdout.Name, Look = best.Number, Configuration = best.Configuration, ModelPath = Path.GetFullPath(modelPath),
-                Featurizer = prepared.Featurizer, Classes = prepared.Classes, TestRows = prepared.TestRows.Count,
-            };
-            File.WriteAllText(recordPath, JsonSerializer.Serialize(record, SearchRecord.JsonOptions));
+            // The selected look was recorded by an earlier search on this holdout: its model is this search's only if this
+            // search's rows retrain it to exactly the per-example losses it recorded.
+            note?.Invoke($"the selected look #{best.Number} was recorded before this search; retraining its configuration to check that this search's rows reproduce it");
+            var trained = runner.Train(TrainerConfiguration.FromJson(best.Configuration), best.Adaptive, 1.0, null);
+            model = runner.Reproduces(trained, best) ? trained.Model : null;
+            if (model is null) note?.Invoke($"this search's rows do not reproduce look #{best.Number} (it was trained on other rows or settings), so no model is saved");
         }
 
-        return new TabularSearchOutcome(statement, outcome, task, options.Task is null, modelPath, recordPath,
-            prepared.TrainingRows.Count, prepared.ValidationRows.Count, prepared.TestRows.Count) { ModelSaved = saved };
+        var selected = model is null ? null : new SelectedModel(_ml, fitted, model, statement.Best!.Number);
+        var (modelPath, recordPath) = Paths(options, holdout.Name);
+        // Rows made in memory cannot be rebuilt from a record, so only a search of files leaves one (and its model).
+        var saved = selected is not null && options.FromFiles;
+        if (saved) Save(options, fitted, holdout.Name, statement.Best!, selected!.Model, modelPath, recordPath);
+        Timings.Stop();
+        return Outcome(options, fitted, statement, outcome, modelPath, recordPath) with { ModelSaved = saved, Selected = selected };
     }
 
-    /// <summary>Scores the selected model on the sealed test rows, once, and returns the test score and the number of test examples.</summary>
+    private (string Model, string Record) Paths(TabularSearchOptions options, string holdout) =>
+        (options.ModelPath ?? Path.Combine(Folder, Safe(holdout) + ".model.zip"), Path.Combine(Folder, Safe(holdout) + ".search.json"));
+
+    private static TabularSearchOutcome Outcome(TabularSearchOptions options, Fitted fitted, Statement statement, SearchOutcome search, string modelPath, string recordPath) =>
+        new(statement, search, fitted.P.Task, options.Task is null, modelPath, recordPath,
+            fitted.P.Training.Count, fitted.P.Validation.Count, fitted.P.Test.Count) { LeftOut = fitted.P.LeftOut.Sum() };
+
+    /// <summary>
+    /// Writes the selected model and the record unseal reads. Each file is written under a temporary name and moved into
+    /// place, so a reader (or a second writer of the same files) never sees half of one.
+    /// </summary>
+    private void Save(TabularSearchOptions options, Fitted fitted, string holdout, Look best, ITransformer model, string modelPath, string recordPath)
+    {
+        var p = fitted.P;
+        var record = new SearchRecord
+        {
+            DataPath = Path.GetFullPath(options.DataPath), Label = options.Label, Task = p.Task.ToString().ToLowerInvariant(), Ignore = [.. options.Ignore],
+            IdColumn = options.IdColumn, Seed = options.Seed, ValidationFraction = options.ValidationFraction, TestFraction = options.TestFraction,
+            ValidationPath = options.ValidationPath is null ? null : Path.GetFullPath(options.ValidationPath),
+            TestPath = options.TestPath is null ? null : Path.GetFullPath(options.TestPath),
+            Holdout = holdout, Look = best.Number, Configuration = best.Configuration, ModelPath = Path.GetFullPath(modelPath),
+            Featurizer = p.Featurizer, Classes = p.Classes,
+            MaxTrainingRows = options.MaxTrainingRows, MaxValidationRows = options.MaxValidationRows, MaxTestRows = options.MaxTestRows,
+            TrainingRows = p.Training.Count, ValidationRows = p.Validation.Count, TestRows = p.Test.Count, LeftOut = [.. p.LeftOut],
+            TestFingerprint = p.TestFingerprint,
+        };
+        var partial = $".{Environment.ProcessId}-{Guid.NewGuid():N}.part";
+        Timings.Save(() =>
+        {
+            _ml.Model.Save(model, fitted.Views.Training.Schema, modelPath + partial);
+            File.Move(modelPath + partial, modelPath, overwrite: true);
+            File.WriteAllText(recordPath + partial, JsonSerializer.Serialize(record, SearchRecord.JsonOptions));
+            File.Move(recordPath + partial, recordPath, overwrite: true);
+        });
+    }
+
+    /// <summary>
+    /// Scores the selected model on the sealed test rows, once, and returns the test score, the number of test examples and
+    /// their fingerprint. The rows are rebuilt from the record (the same file, seed, fractions and cap give the same split);
+    /// the validation rows must still give the holdout and the test rows the fingerprint the search recorded.
+    /// </summary>
     public (double Score, int Rows, string Fingerprint) ScoreTest(SearchRecord record)
     {
         var options = record.ToOptions();
-        var prepared = Prepared.Load(options, null, record.Featurizer);
-        if (prepared.TestRows.Count == 0)
+        var prepared = Prepared.Load(options, null, null, record.Featurizer, Purpose.Unseal);
+        if (prepared.Test.Count == 0)
         {
             throw AccountantException.BadArguments("the search kept no sealed test set (--test-fraction 0 and no --test file), so there is nothing to unseal.");
         }
 
         var holdout = book.Holdout(record.Holdout);
-        if (Fingerprint.Compute(prepared.ValidationExamples().Select(e => e with { Label = Fingerprint.CanonicalLabel(e.Label) }).OrderBy(e => e.Id, StringComparer.Ordinal).ToList()) != holdout.Fingerprint)
+        if (Fingerprint.Compute(prepared.ValidationExamples().OrderBy(e => e.Id, StringComparer.Ordinal).ToList()) != holdout.Fingerprint)
         {
             throw AccountantException.BadInput($"the data in '{record.DataPath}' no longer gives holdout '{holdout.Name}' (its validation rows differ); the test set cannot be rebuilt from a changed file.");
+        }
+
+        if (prepared.TestFingerprint != record.TestFingerprint)
+        {
+            throw AccountantException.BadInput($"the data in '{record.DataPath}' no longer gives the sealed test rows the search recorded (their fingerprint differs); the test set cannot be rebuilt from a changed file.");
         }
 
         ITransformer model;
@@ -157,201 +277,22 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             throw AccountantException.BadInput($"the selected model '{record.ModelPath}' cannot be loaded ({e.Message.TrimEnd('.')}); rerun the search to save it again.");
         }
 
-        var view = new Views(_ml, prepared).Build(prepared.TestRows);
-        var predictions = Runner.Predict(_ml, prepared, model, view, prepared.TestRows);
-        var examples = prepared.TestRows.Select(r => new HoldoutExample(prepared.Data(r).Id(prepared.Row(r)), prepared.Data(r).Label(prepared.Row(r)))).ToList();
-        var sorted = examples.OrderBy(e => e.Id, StringComparer.Ordinal).ToList();
-        var stand = holdout with { Size = sorted.Count };
-        var losses = Losses.Compute(stand, sorted, predictions);
-        return (losses.Score, sorted.Count, Fingerprint.Compute(sorted));
+        var predicted = Fitted.Predict(prepared, model, new Views(_ml, prepared, fit: false).Build(prepared.Test, prepared.Binding));
+        return (prepared.Mean(holdout.LossRange, prepared.Test, predicted), prepared.Test.Count, prepared.TestFingerprint!);
     }
 
-    /// <summary>Everything read and split, ready for training.</summary>
-    private sealed class Prepared
+    private sealed class Runner(Bookkeeper book, Holdout holdout, Fitted fitted, GuardSpec? guard, string search, int seed, SearchTimings timings)
     {
-        public required TabularData Main { get; init; }
-        public TabularData? ValidationFile { get; init; }
-        public TabularData? TestFile { get; init; }
-        public required TaskKind Task { get; init; }
-        public required Metric Metric { get; init; }
-        public LossRange? LossRange { get; init; }
-        public required List<string> Classes { get; init; }
-        public required Featurizer Featurizer { get; init; }
-        // Rows are encoded as (file, row): 0 main, 1 validation file, 2 test file.
-        public required List<(int File, int Row)> TrainingRows { get; init; }
-        public required List<(int File, int Row)> ValidationRows { get; init; }
-        public required List<(int File, int Row)> TestRows { get; init; }
+        public SearchTimings Timings => timings;
 
-        public TabularData Data((int File, int Row) r) => r.File switch { 1 => ValidationFile!, 2 => TestFile!, _ => Main };
-
-        public int Row((int File, int Row) r) => r.Row;
-
-        public List<HoldoutExample> ValidationExamples() =>
-            ValidationRows.Select(r => new HoldoutExample(Data(r).Id(r.Row), Data(r).Label(r.Row))).ToList();
-
-        public static Prepared Load(TabularSearchOptions o, Action<string>? note, Featurizer? fitted = null)
-        {
-            var main = TabularData.Load(o.DataPath, o.Label, o.Ignore, o.IdColumn);
-            var validation = o.ValidationPath is null ? null : TabularData.Load(o.ValidationPath, o.Label, o.Ignore, o.IdColumn, main.Features);
-            var test = o.TestPath is null ? null : TabularData.Load(o.TestPath, o.Label, o.Ignore, o.IdColumn, main.Features);
-            var task = o.Task ?? main.InferTask();
-            if (o.Task is null)
-            {
-                note?.Invoke($"task inferred from the label column '{o.Label}': {Describe(task)} (give --task to choose)");
-            }
-            else if (task != TaskKind.Regression && main.InferTask() == TaskKind.Regression && o.Task != TaskKind.Regression)
-            {
-                note?.Invoke($"the label column '{o.Label}' looks continuous but is treated as classes, as --task asks");
-            }
-
-            var labels = Enumerable.Range(0, main.Count).Select(main.Label).ToList();
-            List<(int, int)> training, validationRows, testRows;
-            if (validation is null)
-            {
-                var testFraction = test is null ? o.TestFraction : 0.0;
-                var split = Splits.Make(labels, o.ValidationFraction, testFraction, o.Seed, stratify: task != TaskKind.Regression);
-                training = split.Training.Select(r => (0, r)).ToList();
-                validationRows = split.Validation.Select(r => (0, r)).ToList();
-                testRows = test is null ? split.Test.Select(r => (0, r)).ToList() : Enumerable.Range(0, test.Count).Select(r => (2, r)).ToList();
-            }
-            else
-            {
-                training = Enumerable.Range(0, main.Count).Select(r => (0, r)).ToList();
-                validationRows = Enumerable.Range(0, validation.Count).Select(r => (1, r)).ToList();
-                if (test is null && o.TestFraction > 0)
-                {
-                    var split = Splits.Make(labels, o.TestFraction, 0.0, o.Seed, stratify: task != TaskKind.Regression);
-                    training = split.Training.Select(r => (0, r)).ToList();
-                    testRows = split.Validation.Select(r => (0, r)).ToList();
-                }
-                else
-                {
-                    testRows = test is null ? [] : Enumerable.Range(0, test.Count).Select(r => (2, r)).ToList();
-                }
-            }
-
-            TabularData Of(int file) => file switch { 1 => validation!, 2 => test!, _ => main };
-            var ids = validationRows.Select(r => Of(r.Item1).Id(r.Item2)).ToList();
-            if (ids.Distinct(StringComparer.Ordinal).Count() != ids.Count)
-            {
-                throw AccountantException.BadInput($"the validation rows repeat an id in '{o.IdColumn}'; ids must be unique (leave out --id-column to use line numbers).");
-            }
-
-            var classes = task == TaskKind.Regression ? [] : training.Concat(validationRows).Concat(testRows).Select(r => Of(r.Item1).Label(r.Item2)).Distinct().Order(StringComparer.Ordinal).ToList();
-            if (task == TaskKind.Binary && classes.Count != 2)
-            {
-                throw AccountantException.BadInput($"binary classification needs exactly two label values, but '{o.Label}' has {classes.Count}; use --task multiclass.");
-            }
-
-            if (task == TaskKind.Regression)
-            {
-                foreach (var r in training.Concat(validationRows).Concat(testRows))
-                {
-                    if (!TabularData.TryNumber(Of(r.Item1).Label(r.Item2), out _))
-                    {
-                        throw AccountantException.BadInput($"regression needs numeric labels, but '{o.Label}' has '{Of(r.Item1).Label(r.Item2)}'; use --task binary or multiclass for classes.");
-                    }
-                }
-            }
-
-            if (training.Count < 2)
-            {
-                throw AccountantException.BadInput("fewer than two training rows remain after the split; give more data or lower the split fractions.");
-            }
-
-            // Regression losses are clipped to [0, range of the training labels], declared from training data alone.
-            LossRange? range = null;
-            if (task == TaskKind.Regression)
-            {
-                var values = training.Select(r => double.Parse(Of(r.Item1).Label(r.Item2), CultureInfo.InvariantCulture)).ToList();
-                var width = values.Max() - values.Min();
-                range = new LossRange(0, width > 0 ? width : 1.0);
-            }
-
-            var featurizer = fitted ?? FitOn(main, training);
-            return new Prepared
-            {
-                Main = main, ValidationFile = validation, TestFile = test, Task = task,
-                Metric = task == TaskKind.Regression ? Metric.AbsoluteError : Metric.Error, LossRange = range,
-                Classes = classes, Featurizer = featurizer, TrainingRows = training, ValidationRows = validationRows, TestRows = testRows,
-            };
-        }
-
-        private static Featurizer FitOn(TabularData main, List<(int, int)> training) => Featurizer.Fit(main, training.Select(r => r.Item2).ToList());
-
-        private static string Describe(TaskKind task) => task switch
-        {
-            TaskKind.Binary => "binary classification",
-            TaskKind.Multiclass => "multiclass classification",
-            _ => "regression",
-        };
-    }
-
-    private sealed class Row
-    {
-        public float[] Features { get; set; } = [];
-        public float Regression { get; set; }
-        public bool Binary { get; set; }
-        public string Class { get; set; } = "";
-    }
-
-    /// <summary>
-    /// The ML.NET views of the rows. Multiclass labels become keys through a value-to-key map fitted on the training rows;
-    /// predicted keys are read back through the key's own value annotations, so no ordering is assumed.
-    /// </summary>
-    private sealed class Views
-    {
-        private readonly MLContext _ml;
-        private readonly Prepared _prepared;
-        private readonly ITransformer _label;
-
-        public Views(MLContext ml, Prepared prepared)
-        {
-            _ml = ml;
-            _prepared = prepared;
-            var raw = Raw(prepared.TrainingRows);
-            IEstimator<ITransformer> label = prepared.Task switch
-            {
-                TaskKind.Binary => ml.Transforms.CopyColumns("Label", nameof(Row.Binary)),
-                TaskKind.Multiclass => ml.Transforms.Conversion.MapValueToKey("Label", nameof(Row.Class)),
-                _ => ml.Transforms.CopyColumns("Label", nameof(Row.Regression)),
-            };
-            _label = label.Fit(raw);
-            Training = _label.Transform(raw);
-            Validation = Build(prepared.ValidationRows);
-        }
-
-        public IDataView Training { get; }
-
-        public IDataView Validation { get; }
-
-        public IDataView Build(IReadOnlyList<(int File, int Row)> rows) => _label.Transform(Raw(rows));
-
-        private IDataView Raw(IReadOnlyList<(int File, int Row)> rows)
-        {
-            var p = _prepared;
-            var definition = SchemaDefinition.Create(typeof(Row));
-            definition["Features"].ColumnType = new VectorDataViewType(NumberDataViewType.Single, p.Featurizer.Width);
-            var data = rows.Select(r =>
-            {
-                var label = p.Data(r).Label(r.Row);
-                return new Row
-                {
-                    Features = p.Featurizer.Transform(p.Data(r), r.Row),
-                    Regression = p.Task == TaskKind.Regression ? (float)double.Parse(label, CultureInfo.InvariantCulture) : 0f,
-                    Binary = p.Task == TaskKind.Binary && label == p.Classes[1],
-                    Class = label,
-                };
-            }).ToList();
-            return _ml.Data.LoadFromEnumerable(data, definition);
-        }
-    }
-
-    private sealed class Runner(MLContext ml, Bookkeeper book, Holdout holdout, Prepared prepared, Views views, GuardSpec? guard, string search)
-    {
         public Dictionary<int, ITransformer> Models { get; } = [];
 
         public Bookkeeper Book => book;
+
+        public Fitted Fitted => fitted;
+
+        public Holdout Holdout => holdout;
+
         private readonly Stopwatch _clock = Stopwatch.StartNew();
         private readonly List<ScoredConfiguration> _looks = [];
         private ScoredConfiguration? _best;
@@ -362,28 +303,49 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
         /// <summary>A configuration trained and its holdout predictions made, not yet recorded.</summary>
         public sealed record Trained(TrainerConfiguration Configuration, ITransformer Model, double Seconds, LookInput Input);
 
-        /// <summary>Trains on the first <paramref name="fraction"/> of the (shuffled) training rows and predicts the holdout; records nothing.</summary>
-        public Trained Train(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage)
+        /// <summary>
+        /// Trains on the first <paramref name="fraction"/> of the (shuffled) training rows and predicts the holdout; records
+        /// nothing. Each training has an ML.NET context of its own seeded from the search's seed, so the same configuration at
+        /// the same stage trains the same model whichever process trains it, and in whatever order.
+        /// </summary>
+        public Trained Train(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage) =>
+            timings.Train(() => TrainNow(configuration, adaptive, fraction, stage));
+
+        private Trained TrainNow(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage)
         {
             var started = _clock.Elapsed;
-            var rows = (long)Math.Max(2, Math.Round(prepared.TrainingRows.Count * fraction));
-            var training = fraction >= 1 ? views.Training : ml.Data.TakeRows(views.Training, rows);
-            var model = TrainerCatalog.Build(ml, prepared.Task, configuration).Fit(training);
-            var predictions = Predict(ml, prepared, model, views.Validation, prepared.ValidationRows);
+            var p = fitted.P;
+            var ml = new MLContext(seed);
+            var rows = (int)Math.Max(2, Math.Round(p.Training.Count * fraction));
+            var training = fraction >= 1 ? fitted.Views.Training : ml.Data.TakeRows(fitted.Views.Training, rows);
+            var model = TrainerCatalog.Build(ml, p.Task, configuration).Fit(training);
+            var losses = fitted.Losses(Fitted.Predict(p, model, fitted.Views.Validation));
             var seconds = (_clock.Elapsed - started).TotalSeconds;
-            double? trainScore = guard?.Kind == GuardKind.Thresholdout ? TrainingScore(model, training) : null;
+            double? trainScore = null;
+            if (guard?.Kind == GuardKind.Thresholdout)
+            {
+                trainScore = p.Mean(holdout.LossRange, p.Training, Fitted.Predict(p, model, training), p.TrainingOrder);
+            }
+
             return new Trained(configuration, model, seconds, new LookInput
             {
-                Configuration = configuration.ToJson(), Predictions = predictions, Search = search, Stage = stage,
+                Configuration = configuration.ToJson(), Losses = losses, Search = search, Stage = stage,
                 Seconds = Math.Round(seconds, 3), Adaptive = adaptive, Guard = guard, TrainScore = trainScore,
             });
         }
+
+        /// <summary>
+        /// Whether a model trained again gives exactly the per-example losses a recorded look stored: the same model, as far
+        /// as the holdout can tell (training is reproducible from the seed, so a retrained configuration on the same rows does).
+        /// </summary>
+        public bool Reproduces(Trained trained, Look look) =>
+            book.Store.LossBytes(holdout, look.Number) is { } stored && trained.Input.Losses.AsSpan().SequenceEqual(stored);
 
         /// <summary>Trains, scores the holdout, records one look.</summary>
         private (Look Look, double? Told) Evaluate(TrainerConfiguration configuration, bool adaptive, double fraction, string? stage)
         {
             var trained = Train(configuration, adaptive, fraction, stage);
-            return Keep(trained, book.RecordMany(holdout.Name, [trained.Input])[0]);
+            return Keep(trained, timings.Account(() => book.RecordMany(holdout.Name, [trained.Input])[0]));
         }
 
         /// <summary>Notes a recorded look of this process: its model is kept while it is this process's best.</summary>
@@ -404,17 +366,11 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             return (look, told);
         }
 
-        private double TrainingScore(ITransformer model, IDataView training)
-        {
-            var rows = prepared.TrainingRows.Take((int)Math.Min(int.MaxValue, training.GetRowCount() ?? prepared.TrainingRows.Count)).ToList();
-            var examples = rows.Select(r => new HoldoutExample(prepared.Data(r).Id(r.Row), prepared.Data(r).Label(r.Row))).OrderBy(e => e.Id, StringComparer.Ordinal).ToList();
-            return Losses.Compute(holdout with { Size = examples.Count }, examples, Predict(ml, prepared, model, training, rows)).Score;
-        }
+        /// <summary>Reports progress; <paramref name="best"/> overrides this process's own best (a shared search shows the whole search's).</summary>
+        public void Report(IProgress<SearchProgress>? progress, int done, int total, string current, double? best = null) =>
+            progress?.Report(new SearchProgress(done, total, best ?? _best?.Look.Score, _clock.Elapsed, current));
 
-        public void Report(IProgress<SearchProgress>? progress, int done, int total, string current) =>
-            progress?.Report(new SearchProgress(done, total, _best?.Look.Score, _clock.Elapsed, current));
-
-        public SearchOutcome Outcome(bool cancelled) => new(_looks, _best, null, cancelled);
+        public SearchOutcome Outcome(bool cancelled) => new(_looks, _best, cancelled);
 
         public SearchOutcome Plain(ISearchStrategy strategy, int looks, IProgress<SearchProgress>? progress, CancellationToken cancel)
         {
@@ -461,54 +417,6 @@ public sealed partial class TabularSearch(Bookkeeper book, string ledgerPath)
             Report(progress, total, total, "done");
             return Outcome(false);
         }
-
-        public static List<Prediction> Predict(MLContext ml, Prepared p, ITransformer model, IDataView view, IReadOnlyList<(int File, int Row)> rows)
-        {
-            var scored = model.Transform(view);
-            var predictions = new List<Prediction>(rows.Count);
-            var column = p.Task == TaskKind.Regression ? "Score" : "PredictedLabel";
-            using var cursor = scored.GetRowCursor([scored.Schema[column]]);
-            var i = 0;
-            if (p.Task == TaskKind.Regression)
-            {
-                var getter = cursor.GetGetter<float>(scored.Schema[column]);
-                float value = 0;
-                while (cursor.MoveNext())
-                {
-                    getter(ref value);
-                    predictions.Add(new Prediction(p.Data(rows[i]).Id(rows[i].Row), ((double)value).ToString("R", CultureInfo.InvariantCulture)));
-                    i++;
-                }
-            }
-            else if (p.Task == TaskKind.Binary)
-            {
-                var getter = cursor.GetGetter<bool>(scored.Schema[column]);
-                var value = false;
-                while (cursor.MoveNext())
-                {
-                    getter(ref value);
-                    predictions.Add(new Prediction(p.Data(rows[i]).Id(rows[i].Row), p.Classes[value ? 1 : 0]));
-                    i++;
-                }
-            }
-            else
-            {
-                VBuffer<ReadOnlyMemory<char>> names = default;
-                scored.Schema[column].GetKeyValues(ref names);
-                var classes = names.DenseValues().Select(v => v.ToString()).ToArray();
-                var getter = cursor.GetGetter<uint>(scored.Schema[column]);
-                uint value = 0;
-                while (cursor.MoveNext())
-                {
-                    getter(ref value);
-                    // Keys are 1-based; 0 would be "missing", which a trained classifier does not predict: it counts as an error.
-                    predictions.Add(new Prediction(p.Data(rows[i]).Id(rows[i].Row), value >= 1 && value <= classes.Length ? classes[value - 1] : "(no class)"));
-                    i++;
-                }
-            }
-
-            return predictions;
-        }
     }
 }
 
@@ -517,7 +425,10 @@ public sealed class SearchRecord
 {
     public static readonly JsonSerializerOptions JsonOptions = new() { WriteIndented = true };
 
-    public int Version { get; set; } = 1;
+    /// <summary>Version 2 (streamed splits, the row cap, feature hashing, the test rows' fingerprint); version 1 records are refused.</summary>
+    public const int CurrentVersion = 2;
+
+    public int Version { get; set; } = CurrentVersion;
     public string DataPath { get; set; } = "";
     public string Label { get; set; } = "";
     public string Task { get; set; } = "";
@@ -534,20 +445,38 @@ public sealed class SearchRecord
     public string ModelPath { get; set; } = "";
     public Featurizer Featurizer { get; set; } = new();
     public List<string> Classes { get; set; } = [];
+    public long MaxTrainingRows { get; set; }
+    public long MaxValidationRows { get; set; }
+    public long MaxTestRows { get; set; }
+    public int TrainingRows { get; set; }
+    public int ValidationRows { get; set; }
     public int TestRows { get; set; }
+
+    /// <summary>Rows of each part (training, validation, test) the cap left out of the search.</summary>
+    public List<long> LeftOut { get; set; } = [];
+
+    /// <summary>The fingerprint of the sealed test rows' ids and labels when the search split them; unseal must rebuild the same.</summary>
+    public string? TestFingerprint { get; set; }
 
     public TabularSearchOptions ToOptions() => new()
     {
         DataPath = DataPath, Label = Label, Task = Enum.Parse<TaskKind>(Task, ignoreCase: true), Ignore = Ignore, IdColumn = IdColumn, Seed = Seed,
         ValidationFraction = ValidationFraction, TestFraction = TestFraction, ValidationPath = ValidationPath, TestPath = TestPath, HoldoutName = Holdout,
+        MaxTrainingRows = MaxTrainingRows, MaxValidationRows = MaxValidationRows, MaxTestRows = MaxTestRows, HashBits = Featurizer.HashBits,
     };
 
     public static SearchRecord Read(string path)
     {
         try
         {
-            return JsonSerializer.Deserialize<SearchRecord>(File.ReadAllText(path), JsonOptions)
-                   ?? throw AccountantException.BadInput($"the search record '{path}' is empty; rerun the search.");
+            var record = JsonSerializer.Deserialize<SearchRecord>(File.ReadAllText(path), JsonOptions)
+                         ?? throw AccountantException.BadInput($"the search record '{path}' is empty; rerun the search.");
+            if (record.Version != CurrentVersion)
+            {
+                throw AccountantException.BadInput($"the search record '{path}' is of version {record.Version}, written by another version of the accountant whose split this one does not rebuild; unseal it with that version, or rerun the search.");
+            }
+
+            return record;
         }
         catch (FileNotFoundException)
         {

@@ -314,6 +314,10 @@ public sealed class DemoCommandTests : IDisposable
         Assert.Equal(ExitCodes.Success, table.Exit);
         Assert.Contains("What only a simulation can show", table.Out);
         Assert.Contains("7 counted", table.Out); // the same holdout, now with 5 + 2 looks
+        // The selected look is the first run's (trained on 400 days, not these 200), so no model of this run stands for it.
+        var best = System.Text.Json.JsonDocument.Parse(_cli.Run("statement", "bakery-validation", "--format", "json").Out).RootElement.GetProperty("best").GetProperty("look").GetInt32();
+        if (best <= 5) Assert.Contains($"the selected look #{best} was trained by an earlier run on this ledger, on other training days", table.Out);
+        else Assert.Contains("its true error on 2,000 fresh days", table.Out);
         Assert.Equal("", table.Err);
     }
 }
@@ -472,5 +476,21 @@ public sealed class SearchCommandTests : IDisposable
         Assert.Equal(ExitCodes.BadInput, _cli.Run("search", data, "--label", "nope").Exit);
         Assert.Equal(ExitCodes.BadArguments, _cli.Run("search", data).Exit);
         Assert.Contains("\"trainers\"", _cli.Run("search", "--print-space", "--task", "regression", "--no-ledger").Out);
+
+        // Out-of-range caps and hash bits: one line, exit 2, before the file is read (no new holdout).
+        foreach (var (option, value, says) in new[]
+        {
+            ("--max-training-rows", "1", "--max-training-rows must be at least 2"), ("--max-validation-rows", "0", "--max-validation-rows must be at least 2"),
+            ("--max-test-rows", "-5", "--max-test-rows must be at least 2"), ("--hash-bits", "30", "--hash-bits must be between 4 and 20"), ("--hash-bits", "3", "--hash-bits must be between 4 and 20"),
+        })
+        {
+            var refused = _cli.Run("search", data, "--label", "sold_out", "--name", "other", option, value);
+            Assert.Equal(ExitCodes.BadArguments, refused.Exit);
+            var line = Assert.Single(refused.Err.Split('\n', StringSplitOptions.RemoveEmptyEntries));
+            Assert.Contains(says, line);
+        }
+
+        using var book = Bookkeeper.Open(_cli.Ledger);
+        Assert.Single(book.Store.Holdouts());
     }
 }

@@ -18,7 +18,7 @@ public sealed class MlNetApiTests : IDisposable
         var ml = new MLContext(seed: 5);
         var training = ml.Data.LoadFromEnumerable(BakeryScenario.Generate(500, 1, "t-"));
         var validation = ml.Data.LoadFromEnumerable(BakeryScenario.Generate(200, 2, "v-"));
-        var model = DemoRunner.Featurizer(ml).Append(ml.BinaryClassification.Trainers.FastTree(numberOfLeaves: 8, numberOfTrees: 20)).Fit(training);
+        var model = BakeryScenario.Featurizer(ml).Append(ml.BinaryClassification.Trainers.FastTree(numberOfLeaves: 8, numberOfTrees: 20)).Fit(training);
 
         // The library, from the model and the data view.
         var libraryLedger = Path.Combine(_cli.Folder, "library.db");
@@ -66,7 +66,7 @@ public sealed class MlNetApiTests : IDisposable
         var told = new List<double?>();
         foreach (var leaves in new[] { 4, 8, 16 })
         {
-            var model = DemoRunner.Featurizer(ml).Append(ml.BinaryClassification.Trainers.FastTree(numberOfLeaves: leaves, numberOfTrees: 20)).Fit(training);
+            var model = BakeryScenario.Featurizer(ml).Append(ml.BinaryClassification.Trainers.FastTree(numberOfLeaves: leaves, numberOfTrees: 20)).Fit(training);
             var look = book.RecordModel(ml, "validation", model, validation, $"{{\"leaves\":{leaves}}}", guard: Guards.GuardSpec.Ladder(0.05), adaptive: leaves > 4);
             told.Add(look.Release!.Value);
             // The Ladder's released value is on its 0.05 grid.

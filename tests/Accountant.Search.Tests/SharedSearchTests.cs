@@ -4,6 +4,7 @@ using Accountant.Ledger;
 using Accountant.Search.Data;
 using Accountant.Search.Trainers;
 using Accountant.Statements;
+using Accountant.Tests.Support;
 using Xunit.Abstractions;
 
 namespace Accountant.Search.Tests;
@@ -57,37 +58,34 @@ public sealed class SharedSearchTests(ITestOutputHelper output) : IDisposable
     {
         var data = BakeryFile.Write(_folder, 300);
         Bookkeeper.Create(Ledger).Dispose();
-        var outcomes = new ConcurrentBag<TabularSearchOutcome>();
-        var errors = new ConcurrentBag<Exception>();
+        var outcomes = new ConcurrentBag<(TabularSearchOutcome Outcome, List<SearchProgress> Reports)>();
         var options = Options(data); // one set of settings, its space file written before any worker starts
-        var workers = Enumerable.Range(0, 3).Select(_ => new Thread(() =>
+        Together.Run(3, _ =>
         {
-            try
-            {
-                using var book = Bookkeeper.Open(Ledger);
-                outcomes.Add(new TabularSearch(book, Ledger).Run(options));
-            }
-            catch (Exception e)
-            {
-                errors.Add(e);
-            }
-        })).ToList();
-        workers.ForEach(t => t.Start());
-        workers.ForEach(t => t.Join());
-        Assert.Empty(errors);
+            using var book = Bookkeeper.Open(Ledger);
+            var reports = new Reports();
+            outcomes.Add((new TabularSearch(book, Ledger).Run(options, reports), reports.All));
+        });
         Assert.Equal(3, outcomes.Count);
 
         // The statement is the same whichever worker printed it.
-        Assert.Single(outcomes.Select(o => Shown(o.Statement)).Distinct());
-        // Exactly one worker holds the selected look's model and saves it; the others name that worker.
-        var saver = Assert.Single(outcomes, o => o.ModelSaved);
-        Assert.All(outcomes, o => Assert.Equal(saver.SharedWorker, o.SelectedBy));
+        Assert.Single(outcomes.Select(o => Shown(o.Outcome.Statement)).Distinct());
+        // Exactly one worker saves the selected model; every worker names that one, and the one whose look was selected.
+        var saver = Assert.Single(outcomes, o => o.Outcome.ModelSaved).Outcome;
+        Assert.All(outcomes, o => Assert.Equal((saver.SharedWorker, saver.RecordPath), (o.Outcome.SavedBy, o.Outcome.SavedAt)));
+        Assert.Single(outcomes.Select(o => o.Outcome.SelectedBy).Distinct());
         Assert.True(File.Exists(saver.ModelPath));
+        Assert.Equal(saver.Statement.Best!.Number, SearchRecord.Read(saver.RecordPath).Look);
+        // Every worker's progress ends on the best of the whole search, also a worker whose own looks are worse (or none).
+        var best = saver.Statement.Best!.Score;
+        Assert.All(outcomes, o => Assert.Equal(best, o.Reports[^1].Best));
+        Assert.Contains(outcomes, o => o.Outcome.Search.Best?.Look.Score != best);
 
         using var reader = Bookkeeper.Open(Ledger);
         var plan = reader.SharedPlans.FindPlan("team")!;
         var tasks = reader.SharedPlans.Tasks(plan);
         var looks = reader.Store.Looks(reader.Holdout("bakery-validation"));
+        Assert.Equal(tasks.Single(t => t.LookNumber == saver.Statement.Best.Number).CompletedBy, saver.SelectedBy);
         // Rungs of 9, 3 and 1 configurations on 1/9, 1/3 and all of the training rows: 13 tasks, 13 looks, numbered 1–13.
         Assert.Equal([9, 3, 1], tasks.GroupBy(t => t.StageIndex).OrderBy(g => g.Key).Select(g => g.Count()));
         Assert.All(tasks, t => Assert.Equal((TaskState.Done, 1), (t.State, t.Attempts)));
@@ -113,6 +111,7 @@ public sealed class SharedSearchTests(ITestOutputHelper output) : IDisposable
         }
 
         var completedBy = tasks.GroupBy(t => t.CompletedBy).Select(g => $"{g.Key}: {g.Count()}");
+        Assert.Equal((SaveState.Saved, 1), (reader.SharedPlans.FindSave(plan)!.State, reader.SharedPlans.FindSave(plan)!.Attempts));
         output.WriteLine($"13 tasks by 3 workers: {string.Join(", ", completedBy)}");
         Assert.True(reader.Verify().Valid);
     }
@@ -124,10 +123,8 @@ public sealed class SharedSearchTests(ITestOutputHelper output) : IDisposable
     {
         var data = BakeryFile.Write(_folder, 120);
         Bookkeeper.Create(Ledger).Dispose();
+        PlanOnly(Options(data) with { Strategy = strategy, Looks = looks });
         using var book = Bookkeeper.Open(Ledger);
-        using var stop = new CancellationTokenSource();
-        stop.Cancel(); // the plan is written on arrival; no configuration is claimed or trained
-        new TabularSearch(book, Ledger).Run(Options(data) with { Strategy = strategy, Looks = looks }, cancel: stop.Token);
         var space = SpaceFile.Read(QuickSpace(), TaskKind.Binary);
         ISearchStrategy own = strategy == "grid" ? new GridStrategy(space, looks) : new RandomStrategy(space, looks, 4);
         var count = strategy == "grid" ? Math.Min(looks, ((GridStrategy)own).Count) : looks;
@@ -143,13 +140,7 @@ public sealed class SharedSearchTests(ITestOutputHelper output) : IDisposable
         var data = BakeryFile.Write(_folder, 200);
         Bookkeeper.Create(Ledger).Dispose();
         var first = Options(data) with { Strategy = "random", Looks = 3 };
-        using (var book = Bookkeeper.Open(Ledger))
-        {
-            // A worker stopped before its first claim still leaves the plan and the holdout.
-            using var stop = new CancellationTokenSource();
-            stop.Cancel();
-            Assert.True(new TabularSearch(book, Ledger).Run(first, cancel: stop.Token).Search.Cancelled);
-        }
+        PlanOnly(first); // a worker stopped before its first claim still leaves the plan and the holdout
 
         var changed = File.ReadAllLines(data);
         changed[1] = changed[1].Replace(",no", ",yes", StringComparison.Ordinal);
@@ -186,5 +177,150 @@ public sealed class SharedSearchTests(ITestOutputHelper output) : IDisposable
         {
             Assert.Equal(3, new TabularSearch(book, Ledger).Run(first).Statement.Looks);
         }
+    }
+
+    /// <summary>A worker stopped before its first claim: the plan and the holdout are written on arrival, nothing is claimed or trained.</summary>
+    private void PlanOnly(TabularSearchOptions options)
+    {
+        using var book = Bookkeeper.Open(Ledger);
+        using var stop = new CancellationTokenSource();
+        stop.Cancel();
+        Assert.True(new TabularSearch(book, Ledger).Run(options, cancel: stop.Token).Search.Cancelled);
+    }
+
+    /// <summary>Progress reports as they came.</summary>
+    private sealed class Reports(int stopAt = int.MaxValue, CancellationTokenSource? stop = null) : IProgress<SearchProgress>
+    {
+        public List<SearchProgress> All { get; } = [];
+
+        public void Report(SearchProgress value)
+        {
+            lock (All) All.Add(value);
+            if (value.Done >= stopAt) stop?.Cancel();
+        }
+    }
+
+    /// <summary>
+    /// One worker does every task of the plan and is stopped right after its last look is recorded, before the closing step:
+    /// what a worker killed between its completion and its save leaves behind (the ledger holds every look, no model is saved).
+    /// </summary>
+    private TabularSearchOutcome StoppedAfterTheLastLook(TabularSearchOptions options)
+    {
+        using var book = Bookkeeper.Open(Ledger);
+        using var stop = new CancellationTokenSource();
+        // Progress is reported before each task is trained, with the tasks done so far: at Looks − 1 the last one is
+        // next, and the stop is seen only when it has been recorded.
+        var outcome = new TabularSearch(book, Ledger).Run(options, new Reports(options.Looks - 1, stop), cancel: stop.Token);
+        Assert.True(outcome.Search.Cancelled);
+        Assert.False(outcome.ModelSaved);
+        var plan = book.SharedPlans.FindPlan(options.Share!)!;
+        Assert.All(book.SharedPlans.Tasks(plan), t => Assert.Equal(TaskState.Done, t.State));
+        Assert.Null(book.SharedPlans.FindSave(plan));
+        Assert.False(File.Exists(outcome.RecordPath));
+        return outcome;
+    }
+
+    [Fact]
+    public void Workers_arriving_together_at_a_finished_plan_whose_model_was_not_saved_save_it_once_by_retraining_the_selected_look()
+    {
+        var data = BakeryFile.Write(_folder, 240);
+        Bookkeeper.Create(Ledger).Dispose();
+        var options = Options(data) with { Strategy = "random", Looks = 4 };
+        var stopped = StoppedAfterTheLastLook(options);
+        string head;
+        using (var book = Bookkeeper.Open(Ledger)) head = book.Store.ChainHead()!;
+
+        // Two late workers and a --finish, together: one saves, retraining the selected look (none of them trained it).
+        var outcomes = new ConcurrentBag<TabularSearchOutcome>();
+        var notes = new ConcurrentBag<string>();
+        Together.Run(3, i =>
+        {
+            using var book = Bookkeeper.Open(Ledger);
+            outcomes.Add(new TabularSearch(book, Ledger).Run(options with { Finish = i == 2 }, note: notes.Add));
+        });
+        var saver = Assert.Single(outcomes, o => o.ModelSaved);
+        Assert.All(outcomes, o => Assert.Equal((saver.SharedWorker, saver.RecordPath), (o.SavedBy, o.SavedAt)));
+        Assert.Single(notes, n => n.StartsWith("retraining the selected look", StringComparison.Ordinal));
+        Assert.All(outcomes, o => Assert.Equal(stopped.SharedWorker, o.SelectedBy)); // the stopped worker trained every look
+
+        using var reader = Bookkeeper.Open(Ledger);
+        var plan = reader.SharedPlans.FindPlan("team")!;
+        Assert.Equal((SaveState.Saved, 1, saver.SharedWorker), (reader.SharedPlans.FindSave(plan)!.State, reader.SharedPlans.FindSave(plan)!.Attempts, reader.SharedPlans.FindSave(plan)!.Worker));
+        Assert.Equal(head, reader.Store.ChainHead()); // saving writes no look
+        var record = SearchRecord.Read(saver.RecordPath);
+        Assert.Equal(stopped.Statement.Best!.Number, record.Look);
+        // The retrained model is the one the look recorded: the same configuration at the same stage on the same seeded
+        // split scores the recorded score (checked before saving; checked again here through the saved model).
+        var validationIds = reader.Store.Examples(reader.Holdout("bakery-validation")).Select(e => e.Id).ToHashSet();
+        var validationRows = Path.Combine(_folder, "validation-rows.csv");
+        File.WriteAllLines(validationRows, File.ReadLines(data).Where((line, i) => i == 0 || validationIds.Contains(line.Split(',')[0])));
+        Assert.Equal((stopped.Statement.Best.Score, 48), saver.Selected!.Score(Search.Data.RowSource.File(validationRows)));
+        var (test, rows, _) = new TabularSearch(reader, Ledger).ScoreTest(record);
+        Assert.Equal(48, rows);
+        Assert.InRange(test, 0.0, 1.0);
+    }
+
+    [Fact]
+    public void A_save_whose_holder_stopped_renewing_its_lease_is_taken_over_by_a_later_worker()
+    {
+        var data = BakeryFile.Write(_folder, 200);
+        Bookkeeper.Create(Ledger).Dispose();
+        var options = Options(data) with { Strategy = "random", Looks = 3, Lease = TimeSpan.FromSeconds(1) };
+        StoppedAfterTheLastLook(options);
+        using var book = Bookkeeper.Open(Ledger);
+        var plan = book.SharedPlans.FindPlan("team")!;
+        // A worker that claimed the closing step and died: its claim stands until its lease runs out.
+        Assert.Equal(SaveState.Claimed, book.SharedPlans.ClaimSave(plan, "ghost", TimeSpan.FromSeconds(1)).State);
+        var notes = new List<string>();
+        var late = new TabularSearch(book, Ledger).Run(options, note: notes.Add);
+        Assert.True(late.ModelSaved);
+        Assert.Contains(notes, n => n.StartsWith("waiting for worker ghost to save the selected model", StringComparison.Ordinal));
+        Assert.Contains(notes, n => n.StartsWith("took over saving the selected model (attempt 2)", StringComparison.Ordinal));
+        var save = book.SharedPlans.FindSave(plan)!;
+        Assert.Equal((SaveState.Saved, 2, late.SharedWorker, late.Statement.Best!.Number), (save.State, save.Attempts, save.Worker, save.Look));
+        Assert.True(File.Exists(late.ModelPath));
+    }
+
+    [Fact]
+    public void Finish_does_only_the_closing_step_and_refuses_what_it_cannot_finish_writing_nothing()
+    {
+        var data = BakeryFile.Write(_folder, 200);
+        Bookkeeper.Create(Ledger).Dispose();
+        var options = Options(data) with { Strategy = "random", Looks = 3 };
+        PlanOnly(options);
+
+        using var reader = Bookkeeper.Open(Ledger);
+        var plan = reader.SharedPlans.FindPlan("team")!;
+        string Snapshot() => $"{reader.Store.ChainHead()} {reader.Store.Holdouts().Count} {JsonSerializer.Serialize(reader.SharedPlans.Tasks(plan))} {reader.SharedPlans.FindSave(plan)}";
+        var before = Snapshot();
+        foreach (var (refused, says) in new (TabularSearchOptions, string)[]
+        {
+            (options with { Finish = true }, "the shared search 'team' still has 3 task(s) to do"),
+            (options with { Finish = true, Share = null }, "--finish saves the selected model of a shared search"),
+            (options with { Finish = true, Share = "nobody" }, "the ledger has no shared search named 'nobody'"),
+            (options with { Finish = true, DataPath = Path.Combine(_folder, "missing.csv"), Share = "nobody" }, "no shared search named 'nobody'"), // refused before the data is read
+        })
+        {
+            using var book = Bookkeeper.Open(Ledger);
+            var error = Assert.Throws<AccountantException>(() => new TabularSearch(book, Ledger).Run(refused));
+            Assert.Equal(ErrorKind.BadArguments, error.Kind);
+            Assert.Contains(says, error.Message);
+            Assert.Equal(before, Snapshot());
+        }
+
+        // Once the tasks are done (by a worker stopped before it saved), --finish saves; a second one finds it saved.
+        StoppedAfterTheLastLook(options);
+        var head = reader.Store.ChainHead();
+        TabularSearchOutcome first, second;
+        using (var book = Bookkeeper.Open(Ledger)) first = new TabularSearch(book, Ledger).Run(options with { Finish = true });
+        Assert.True(first.ModelSaved);
+        Assert.Empty(first.Search.Looks);
+        var saved = File.ReadAllText(first.RecordPath);
+        using (var book = Bookkeeper.Open(Ledger)) second = new TabularSearch(book, Ledger).Run(options with { Finish = true });
+        Assert.False(second.ModelSaved);
+        Assert.Equal((first.SharedWorker, first.RecordPath), (second.SavedBy, second.SavedAt));
+        Assert.Equal(saved, File.ReadAllText(first.RecordPath));
+        Assert.Equal(head, reader.Store.ChainHead());
+        Assert.Equal(Shown(first.Statement), Shown(second.Statement));
     }
 }

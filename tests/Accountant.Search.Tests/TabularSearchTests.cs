@@ -29,35 +29,6 @@ public sealed class TabularSearchTests : IDisposable
     }
 
     [Fact]
-    public void Splits_are_stratified_shuffled_and_reproducible_from_the_seed()
-    {
-        var labels = Enumerable.Range(0, 1000).Select(i => i < 700 ? "a" : i < 950 ? "b" : "c").ToList(); // sorted by class
-        var split = Splits.Make(labels, 0.2, 0.2, 5, stratify: true);
-        Assert.Equal(split, Splits.Make(labels, 0.2, 0.2, 5, stratify: true), new SplitComparer());
-        Assert.NotEqual(split.Validation, Splits.Make(labels, 0.2, 0.2, 6, stratify: true).Validation);
-        foreach (var (part, size) in new[] { (split.Validation, 200), (split.Test, 200), (split.Training, 600) })
-        {
-            Assert.Equal(size, part.Count);
-            // Each class in the same proportion as in the whole file (700 : 250 : 50).
-            Assert.Equal(0.70 * size, part.Count(i => labels[i] == "a"));
-            Assert.Equal(0.05 * size, part.Count(i => labels[i] == "c"));
-        }
-
-        Assert.Equal(1000, split.Training.Concat(split.Validation).Concat(split.Test).Distinct().Count());
-        // Shuffled: the validation rows of class "a" are not the first rows of the file.
-        Assert.NotEqual(Enumerable.Range(0, 140), split.Validation.Where(i => labels[i] == "a").Order());
-        var one = Assert.Throws<AccountantException>(() => Splits.Make([.. labels, "rare"], 0.2, 0.2, 5, stratify: true));
-        Assert.Contains("'rare' has only 1 example", one.Message);
-    }
-
-    private sealed class SplitComparer : IEqualityComparer<SplitIndices>
-    {
-        public bool Equals(SplitIndices? x, SplitIndices? y) => x!.Training.SequenceEqual(y!.Training) && x.Validation.SequenceEqual(y.Validation) && x.Test.SequenceEqual(y.Test);
-
-        public int GetHashCode(SplitIndices obj) => 0;
-    }
-
-    [Fact]
     public void A_search_registers_the_validation_rows_records_every_look_and_unseals_twice_with_a_warning()
     {
         var data = BakeryCsv(900);

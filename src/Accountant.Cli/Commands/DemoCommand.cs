@@ -80,7 +80,7 @@ internal sealed class DemoCommand : Command
             DemoOutcome outcome;
             using (CtrlC.Observe())
             {
-                outcome = DemoRunner.Run(book, options, progress, env.Cancel);
+                outcome = BakeryDemo.Run(book, options, progress, env.Cancel);
             }
 
             if (outcome.Search.Cancelled)
@@ -115,7 +115,7 @@ internal sealed class DemoCommand : Command
         }
 
         var body = StatementWriter.Render(s, format);
-        if (s.Best is not { } selected || double.IsNaN(outcome.SelectedTrueError))
+        if (s.Best is not { } selected || (double.IsNaN(outcome.SelectedTrueError) && outcome.Search.Cancelled))
         {
             return body;
         }
@@ -127,6 +127,12 @@ internal sealed class DemoCommand : Command
         truth.AppendLine();
         truth.AppendLine(format == "markdown" ? "#### What only a simulation can show" : "What only a simulation can show (the scenario's rule is known)");
         if (format == "markdown") truth.AppendLine();
+        if (double.IsNaN(outcome.SelectedTrueError))
+        {
+            var line = $"  the selected look #{selected.Number} was trained by an earlier run on this ledger, on other training days, so its true error is not measured here (a new ledger shows it)";
+            return body + truth + (format == "markdown" ? "-" + line[1..] : line) + Environment.NewLine;
+        }
+
         var lines = new[]
         {
             Row($"selected look #{selected.Number}, validation error", Text.N(selected.Score)),

@@ -23,6 +23,12 @@ internal sealed class SearchCommand : Command
         var testFraction = new Option<double>("--test-fraction") { Description = "Share of rows sealed as the test set.", DefaultValueFactory = _ => 0.2 };
         var validation = new Option<string?>("--validation") { Description = "A separate validation file (same columns)." };
         var test = new Option<string?>("--test") { Description = "A separate test file to seal (same columns)." };
+        var defaults = new TabularSearchOptions { DataPath = "", Label = "" };
+        Option<long> Cap(string name, string part, long value) => new(name) { Description = $"The most {part} rows kept: more keep a seeded sample of this many, stratified by class, and the rest are left out (bounds memory on large files).", DefaultValueFactory = _ => value };
+        var maxTraining = Cap("--max-training-rows", "training", defaults.MaxTrainingRows);
+        var maxValidation = Cap("--max-validation-rows", "validation (holdout)", defaults.MaxValidationRows);
+        var maxTest = Cap("--max-test-rows", "sealed test", defaults.MaxTestRows);
+        var hashBits = new Option<int>("--hash-bits") { Description = "A categorical column with more than 50 training values is hashed into 2^BITS slots.", DefaultValueFactory = _ => Featurizer.DefaultHashBits };
         var space = new Option<string?>("--space") { Description = "A search space JSON file (see --print-space)." };
         var printSpace = new Option<bool>("--print-space") { Description = "Print the default search space for --task (binary by default) and stop." };
         var strategy = new Option<string>("--strategy") { Description = "random, grid (non-adaptive), refine or halving (adaptive).", DefaultValueFactory = _ => "random" };
@@ -34,13 +40,14 @@ internal sealed class SearchCommand : Command
         var plot = new Option<string?>("--plot") { Description = "Also write the search's plot (.png or .svg)." };
         var quiet = new Option<bool>("--quiet") { Description = "No progress bar." };
         var share = new Option<string?>("--share") { Description = "Work through one search plan, stored in the ledger, with every other worker given the same NAME and settings (random, grid or halving); the ledger must exist (accountant init)." };
+        var finish = new Option<bool>("--finish") { Description = "With --share, when every configuration of the shared search is done: only save the selected model and its record (when no worker did), then print the statement; give the workers' settings." };
         var lease = new Option<string>("--lease") { Description = "With --share: how long a claimed configuration stays this worker's unless renewed (renewed while it trains), e.g. 90s, 5m, 1500ms.", DefaultValueFactory = _ => "2m" };
         var confidence = Common.Confidence();
         var tolerance = Common.Tolerance(0.02);
         var twoSided = Common.TwoSided();
         var format = Common.Format("table", "json", "markdown");
         Arguments.Add(data);
-        foreach (var option in new Option[] { label, task, ignore, idColumn, seed, validationFraction, testFraction, validation, test, space, printSpace, strategy, looks, guard, name, modelOut, plot, quiet, share, lease, confidence, tolerance, twoSided, format })
+        foreach (var option in new Option[] { label, task, ignore, idColumn, seed, validationFraction, testFraction, validation, test, maxTraining, maxValidation, maxTest, hashBits, space, printSpace, strategy, looks, guard, name, modelOut, plot, quiet, share, finish, lease, confidence, tolerance, twoSided, format })
         {
             Options.Add(option);
         }
@@ -64,7 +71,8 @@ internal sealed class SearchCommand : Command
                 ValidationPath = r.GetValue(validation), TestPath = r.GetValue(test), SpacePath = r.GetValue(space), Strategy = r.GetValue(strategy)!,
                 Looks = r.GetValue(looks), Guard = r.GetValue(guard) is { } g ? Guards.GuardSpec.Parse(g) : null, HoldoutName = r.GetValue(name),
                 ModelPath = r.GetValue(modelOut), Statement = Common.StatementOptions(r, confidence, tolerance, twoSided),
-                Share = r.GetValue(share), Lease = Duration(r.GetValue(lease)!, "--lease"),
+                Share = r.GetValue(share), Lease = Duration(r.GetValue(lease)!, "--lease"), Finish = r.GetValue(finish),
+                MaxTrainingRows = r.GetValue(maxTraining), MaxValidationRows = r.GetValue(maxValidation), MaxTestRows = r.GetValue(maxTest), HashBits = r.GetValue(hashBits),
             };
             var plotPath = r.GetValue(plot);
             if (plotPath is not null) StatementPlot.CheckPath(plotPath);
@@ -92,9 +100,10 @@ internal sealed class SearchCommand : Command
             if (r.GetValue(format) == "table")
             {
                 env.Output.WriteLine();
-                var model = outcome.SharedWorker is null || outcome.ModelSaved ? $"selected model {outcome.ModelPath}"
-                    : outcome.SelectedBy is { } by ? $"the selected model is saved by worker {by}, which trained it" : "no selected model";
-                env.Output.WriteLine($"Data         {Text.Count(outcome.TrainingRows)} training, {Text.Count(outcome.ValidationRows)} validation and {Text.Count(outcome.TestRows)} sealed test rows; {model}");
+                var model = outcome.ModelSaved ? $"selected model {outcome.ModelPath}"
+                    : outcome.SavedBy is { } by ? $"the selected model was saved by worker {by} (its record at {outcome.SavedAt})" : "no selected model saved by this search";
+                var leftOut = outcome.LeftOut > 0 ? $" ({Text.Count(outcome.LeftOut)} more left out by the --max-*-rows caps)" : "";
+                env.Output.WriteLine($"Data         {Text.Count(outcome.TrainingRows)} training, {Text.Count(outcome.ValidationRows)} validation and {Text.Count(outcome.TestRows)} sealed test rows{leftOut}; {model}");
                 env.Output.WriteLine($"Next         'accountant unseal {outcome.Statement.Holdout.Name}' scores the selected model on the sealed test set, once.");
             }
 

@@ -1,3 +1,5 @@
+using Microsoft.ML;
+
 namespace Accountant.Search.Demo;
 
 /// <summary>One day's batch at an invented neighbourhood bakery: did the sourdough sell out by closing?</summary>
@@ -96,16 +98,37 @@ public static class BakeryScenario
         return days;
     }
 
+    /// <summary>The columns of the scenario's days as a table (the label column is <c>sold_out</c>, yes or no).</summary>
+    public static readonly string[] Header = ["day", "weekday", "temperature", "rain", "street_event", "loaves", "price", "hours_open", "sold_out"];
+
+    /// <summary>One day's fields, in the order of <see cref="Header"/>, as a CSV file holds them (culture-invariant).</summary>
+    public static string[] Cells(BakeryDay d)
+    {
+        static string N(float x) => x.ToString(System.Globalization.CultureInfo.InvariantCulture);
+        return [d.Id, d.Weekday, N(d.Temperature), N(d.Rain), N(d.StreetEvent), N(d.Loaves), N(d.Price), N(d.HoursOpen), d.Label ? "yes" : "no"];
+    }
+
+    /// <summary>Days as rows for a search, held in memory.</summary>
+    public static Data.RowSource Rows(string name, IEnumerable<BakeryDay> days) => Data.RowSource.Memory(name, Header, days.Select(Cells));
+
     /// <summary>Writes days as CSV with a header (the label column is <c>sold_out</c>, yes or no).</summary>
     public static void WriteCsv(IEnumerable<BakeryDay> days, TextWriter writer)
     {
-        writer.WriteLine("day,weekday,temperature,rain,street_event,loaves,price,hours_open,sold_out");
+        writer.WriteLine(string.Join(',', Header));
         foreach (var d in days)
         {
-            writer.WriteLine(string.Create(System.Globalization.CultureInfo.InvariantCulture,
-                $"{d.Id},{d.Weekday},{d.Temperature},{d.Rain},{d.StreetEvent},{d.Loaves},{d.Price},{d.HoursOpen},{(d.Label ? "yes" : "no")}"));
+            writer.WriteLine(string.Join(',', Cells(d)));
         }
     }
+
+    /// <summary>
+    /// An ML.NET featurizer for the scenario's days as <see cref="BakeryDay"/> objects, for a training loop of one's own in an
+    /// <see cref="Microsoft.ML.MLContext"/>: the weekday one-hot, the other conditions as they are.
+    /// </summary>
+    public static Microsoft.ML.IEstimator<Microsoft.ML.ITransformer> Featurizer(Microsoft.ML.MLContext ml) =>
+        ml.Transforms.Categorical.OneHotEncoding("WeekdayOneHot", nameof(BakeryDay.Weekday))
+            .Append(ml.Transforms.Concatenate("Features", "WeekdayOneHot", nameof(BakeryDay.Temperature), nameof(BakeryDay.Rain),
+                nameof(BakeryDay.StreetEvent), nameof(BakeryDay.Loaves), nameof(BakeryDay.Price), nameof(BakeryDay.HoursOpen)));
 
     /// <summary>The Bayes error of a sample: the mean of min(p, 1 − p), the error of the best possible classifier.</summary>
     public static double BayesError(IEnumerable<BakeryDay> days) => days.Average(d => Math.Min(d.TrueProbability, 1 - d.TrueProbability));

@@ -5,8 +5,9 @@ using System.Globalization;
 namespace Accountant.Ledger;
 
 /// <summary>How one backend spells the few things of <see cref="DbPlanBoard"/> that differ between SQLite and PostgreSQL.</summary>
-/// <param name="Ddl">Creates the two coordination tables when they are missing (run inside <paramref name="BeginCreate"/>).</param>
+/// <param name="Ddl">Creates the coordination tables that are missing (run inside <paramref name="BeginCreate"/>; every statement is CREATE … IF NOT EXISTS).</param>
 /// <param name="HasTables">A query giving 1 when the coordination tables exist, else 0.</param>
+/// <param name="HasSaves">A query giving 1 when the closing steps' table exists, else 0 (a ledger whose plans predate it).</param>
 /// <param name="ClaimLock">Appended to the query that picks a task to claim: PostgreSQL's <c>FOR UPDATE SKIP LOCKED</c>, so concurrent
 /// claimers take different rows without waiting; empty for SQLite, whose write transaction already excludes other writers.</param>
 /// <param name="RowLock">Appended to the query that reads the task being completed (<c>FOR UPDATE</c> on PostgreSQL).</param>
@@ -17,6 +18,7 @@ namespace Accountant.Ledger;
 internal sealed record BoardDialect(
     string Ddl,
     string HasTables,
+    string HasSaves,
     string ClaimLock,
     string RowLock,
     Func<DbTransaction> BeginCreate,
@@ -26,7 +28,8 @@ internal sealed record BoardDialect(
 
 /// <summary>
 /// <see cref="ISharedPlanStore"/> in plain SQL that SQLite and PostgreSQL both accept, so both backends coordinate shared
-/// searches with the same code. Two tables, <c>shared_plans</c> and <c>shared_tasks</c>, created on the first shared search;
+/// searches with the same code. Three tables, <c>shared_plans</c>, <c>shared_tasks</c> and <c>shared_saves</c> (each plan's
+/// closing step: saving the selected model), created on the first shared search;
 /// they are coordination, not ledger: outside the chain and the schema version, changed as work proceeds (no append-only
 /// triggers), and not carried by a copy of the ledger. Lease times are milliseconds since 1970 on the store's clock.
 /// </summary>
@@ -173,6 +176,85 @@ internal sealed class DbPlanBoard(DbConnection connection, TimeProvider clock, B
 
     public IReadOnlyList<PlanTask> Tasks(SharedPlan plan) => ReadTasks(plan);
 
+    private const string SaveColumns = "state, claimant, lease_ends, attempts, look_number, location";
+
+    public SaveClaim ClaimSave(SharedPlan plan, string worker, TimeSpan lease)
+    {
+        // Under the creation lock: the closing step's table is newer than the plan tables, so a ledger whose plans were
+        // made before it gets it here (every statement of the DDL is CREATE … IF NOT EXISTS).
+        using var transaction = dialect.BeginCreate();
+        Execute(dialect.Ddl);
+        var open = Convert.ToInt32(Scalar("SELECT count(*) FROM shared_tasks WHERE plan_id = @plan AND state <> 2;", ("@plan", plan.Key)), CultureInfo.InvariantCulture);
+        var now = Now();
+        var stored = open > 0 ? null : ReadSave(plan);
+        SaveClaim result;
+        if (open > 0)
+        {
+            result = new SaveClaim(SaveState.Unfinished, null, null, 0, null, null, open);
+        }
+        else if (stored is null)
+        {
+            Execute($"INSERT INTO shared_saves (plan_id, {SaveColumns}) VALUES (@plan, 1, @worker, @ends, 1, NULL, NULL);",
+                ("@plan", plan.Key), ("@worker", worker), ("@ends", now + (long)lease.TotalMilliseconds));
+            result = ReadSave(plan)!;
+        }
+        else if (stored.State == SaveState.Saved || (stored.Worker != worker && stored.LeaseEnds!.Value.ToUnixTimeMilliseconds() > now))
+        {
+            result = stored.State == SaveState.Saved ? stored : stored with { State = SaveState.Held };
+        }
+        else
+        {
+            Execute("UPDATE shared_saves SET claimant = @worker, lease_ends = @ends, attempts = attempts + 1 WHERE plan_id = @plan;",
+                ("@worker", worker), ("@ends", now + (long)lease.TotalMilliseconds), ("@plan", plan.Key));
+            result = ReadSave(plan)!;
+        }
+
+        transaction.Commit();
+        return result;
+    }
+
+    public bool RenewSave(SharedPlan plan, string worker, TimeSpan lease)
+    {
+        using var transaction = dialect.BeginClaim();
+        var renewed = Execute("UPDATE shared_saves SET lease_ends = @ends WHERE plan_id = @plan AND state = 1 AND claimant = @worker;",
+            ("@ends", Now() + (long)lease.TotalMilliseconds), ("@plan", plan.Key), ("@worker", worker)) == 1;
+        transaction.Commit();
+        return renewed;
+    }
+
+    public bool CompleteSave(SharedPlan plan, string worker, int look, string location)
+    {
+        using var transaction = dialect.BeginClaim();
+        var completed = Execute("UPDATE shared_saves SET state = 2, look_number = @look, location = @location WHERE plan_id = @plan AND state = 1 AND claimant = @worker;",
+            ("@look", look), ("@location", location), ("@plan", plan.Key), ("@worker", worker)) == 1;
+        transaction.Commit();
+        return completed;
+    }
+
+    public SaveClaim? FindSave(SharedPlan plan) => Convert.ToInt64(Scalar(dialect.HasSaves), CultureInfo.InvariantCulture) > 0 ? ReadSave(plan) : null;
+
+    private SaveClaim? ReadSave(SharedPlan plan)
+    {
+        using var command = Command($"SELECT {SaveColumns} FROM shared_saves WHERE plan_id = @plan;", ("@plan", plan.Key));
+        using var reader = command.ExecuteReader();
+        if (!reader.Read()) return null;
+        return new SaveClaim(
+            (SaveState)Convert.ToInt32(reader.GetValue(0), CultureInfo.InvariantCulture), reader.GetString(1),
+            DateTimeOffset.FromUnixTimeMilliseconds(Convert.ToInt64(reader.GetValue(2), CultureInfo.InvariantCulture)),
+            Convert.ToInt32(reader.GetValue(3), CultureInfo.InvariantCulture),
+            reader.IsDBNull(4) ? null : Convert.ToInt32(reader.GetValue(4), CultureInfo.InvariantCulture), reader.IsDBNull(5) ? null : reader.GetString(5));
+    }
+
+    public double? BestScore(SharedPlan plan, Holdout holdout)
+    {
+        var best = holdout.Metric.HigherIsBetter() ? "MAX" : "MIN";
+        var value = Scalar($"""
+            SELECT {best}(l.score) FROM shared_tasks t JOIN looks l ON l.holdout_id = @holdout AND l.number = t.look_number
+            WHERE t.plan_id = @plan AND t.state = 2;
+            """, ("@holdout", holdout.Key), ("@plan", plan.Key));
+        return value is null or DBNull ? null : Convert.ToDouble(value, CultureInfo.InvariantCulture);
+    }
+
     private List<PlanTask> ReadTasks(SharedPlan plan, int? only = null, string suffix = "")
     {
         var sql = $"SELECT {TaskColumns} FROM shared_tasks WHERE plan_id = @plan{(only is null ? "" : " AND number = @number")} ORDER BY number{suffix};";
@@ -249,4 +331,14 @@ internal interface IPlanBoardHost : ISharedPlanStore
         Guard(() => Board.Complete(plan, task, worker, holdout, look, nextStage));
 
     IReadOnlyList<PlanTask> ISharedPlanStore.Tasks(SharedPlan plan) => Guard(() => Board.Tasks(plan));
+
+    SaveClaim ISharedPlanStore.ClaimSave(SharedPlan plan, string worker, TimeSpan lease) => Guard(() => Board.ClaimSave(plan, worker, lease));
+
+    bool ISharedPlanStore.RenewSave(SharedPlan plan, string worker, TimeSpan lease) => Guard(() => Board.RenewSave(plan, worker, lease));
+
+    bool ISharedPlanStore.CompleteSave(SharedPlan plan, string worker, int look, string location) => Guard(() => Board.CompleteSave(plan, worker, look, location));
+
+    SaveClaim? ISharedPlanStore.FindSave(SharedPlan plan) => Guard(() => Board.FindSave(plan));
+
+    double? ISharedPlanStore.BestScore(SharedPlan plan, Holdout holdout) => Guard(() => Board.BestScore(plan, holdout));
 }

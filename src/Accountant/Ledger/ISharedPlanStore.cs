@@ -61,7 +61,55 @@ public interface ISharedPlanStore
 
     /// <summary>Every task of the plan in number order, with its state, claimant, lease, attempts and look. Reads only.</summary>
     IReadOnlyList<PlanTask> Tasks(SharedPlan plan);
+
+    /// <summary>
+    /// Claims the plan's closing step, saving the selected look's model, for <paramref name="worker"/>, in one transaction,
+    /// the way <see cref="Claim"/> claims a task: only once no task is pending or claimed (else
+    /// <see cref="SaveState.Unfinished"/>, changing nothing); then, unless the step is done (<see cref="SaveState.Saved"/>)
+    /// or held by another worker whose lease still runs (<see cref="SaveState.Held"/>), this worker gets it with a lease
+    /// ending <paramref name="lease"/> from now and one more attempt (<see cref="SaveState.Claimed"/>). Two concurrent calls
+    /// never both get it while its lease runs, so the model is saved once unless a holder outlives its lease.
+    /// </summary>
+    SaveClaim ClaimSave(SharedPlan plan, string worker, TimeSpan lease);
+
+    /// <summary>Extends <paramref name="worker"/>'s lease on the closing step; false, changing nothing, when it is done or another worker holds it.</summary>
+    bool RenewSave(SharedPlan plan, string worker, TimeSpan lease);
+
+    /// <summary>
+    /// Marks the closing step done by <paramref name="worker"/>, for look <paramref name="look"/>, with the place its record was
+    /// written; false, changing nothing, unless this worker holds the step (another took it over after this one's lease ran out).
+    /// </summary>
+    bool CompleteSave(SharedPlan plan, string worker, int look, string location);
+
+    /// <summary>The closing step as stored (null before any worker claimed it). Reads only.</summary>
+    SaveClaim? FindSave(SharedPlan plan);
+
+    /// <summary>
+    /// The best score among the looks of the plan's done tasks (the lowest, or the highest when the holdout's metric is
+    /// higher-is-better; voided looks included), or null before any task is done: what a worker shows as the search's best. Reads only.
+    /// </summary>
+    double? BestScore(SharedPlan plan, Holdout holdout);
 }
+
+/// <summary>Where a plan's closing step (saving the selected model) stands.</summary>
+public enum SaveState
+{
+    /// <summary>Some task is still pending or claimed.</summary>
+    Unfinished = 0,
+
+    /// <summary>Held by a worker (the caller, after a successful claim), whose lease runs until <see cref="SaveClaim.LeaseEnds"/>.</summary>
+    Claimed = 1,
+
+    /// <summary>Done: the model and its record were saved.</summary>
+    Saved = 2,
+
+    /// <summary>Held by another worker whose lease has not run out.</summary>
+    Held = 3,
+}
+
+/// <summary>The closing step of a plan: its state, the worker that holds (or held, or did) it, its attempts, and once saved the look and the record's place.</summary>
+/// <param name="Remaining">With <see cref="SaveState.Unfinished"/>, how many tasks are pending or claimed.</param>
+public sealed record SaveClaim(SaveState State, string? Worker, DateTimeOffset? LeaseEnds, int Attempts, int? Look, string? Location, int Remaining = 0);
 
 /// <summary>A shared search plan as stored.</summary>
 /// <param name="Key">The backend's key for the plan.</param>

@@ -34,6 +34,15 @@ public sealed partial class PostgresLedgerStore : IPlanBoardHost
             completed_by  text,
             PRIMARY KEY (plan_id, number)
         );
+        CREATE TABLE IF NOT EXISTS shared_saves (
+            plan_id     bigint PRIMARY KEY,
+            state       integer NOT NULL,
+            claimant    text NOT NULL,
+            lease_ends  bigint NOT NULL,
+            attempts    integer NOT NULL,
+            look_number integer,
+            location    text
+        );
         """;
 
     private DbPlanBoard? _board;
@@ -41,6 +50,7 @@ public sealed partial class PostgresLedgerStore : IPlanBoardHost
     DbPlanBoard IPlanBoardHost.Board => _board ??= new DbPlanBoard(_connection, _clock, new BoardDialect(
         BoardTables,
         "SELECT CASE WHEN to_regclass('shared_tasks') IS NULL THEN 0 ELSE 1 END;",
+        "SELECT CASE WHEN to_regclass('shared_saves') IS NULL THEN 0 ELSE 1 END;",
         ClaimLock: " FOR UPDATE SKIP LOCKED",
         RowLock: " FOR UPDATE",
         BeginCreate: () =>

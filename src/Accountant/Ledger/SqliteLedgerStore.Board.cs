@@ -31,6 +31,15 @@ public sealed partial class SqliteLedgerStore : IPlanBoardHost
             completed_by  TEXT,
             PRIMARY KEY (plan_id, number)
         );
+        CREATE TABLE IF NOT EXISTS shared_saves (
+            plan_id     INTEGER PRIMARY KEY,
+            state       INTEGER NOT NULL,
+            claimant    TEXT NOT NULL,
+            lease_ends  INTEGER NOT NULL,
+            attempts    INTEGER NOT NULL,
+            look_number INTEGER,
+            location    TEXT
+        );
         """;
 
     private DbPlanBoard? _board;
@@ -38,6 +47,7 @@ public sealed partial class SqliteLedgerStore : IPlanBoardHost
     DbPlanBoard IPlanBoardHost.Board => _board ??= new DbPlanBoard(_connection, _clock, new BoardDialect(
         BoardTables,
         "SELECT count(*) FROM sqlite_master WHERE type = 'table' AND name = 'shared_tasks';",
+        "SELECT count(*) FROM sqlite_master WHERE type = 'table' AND name = 'shared_saves';",
         ClaimLock: "",
         RowLock: "",
         BeginCreate: () => _connection.BeginTransaction(deferred: false),

@@ -285,6 +285,39 @@ public sealed class BadInputCorpusTests(ITestOutputHelper output) : IDisposable
             }
         }
 
+        // A search's data file broken deep inside: every defect fails the first pass over the file, so nothing is written,
+        // not even the holdout. Cut inside its last row (a copy cut short), and one defect on row 1,500 of 2,000.
+        var data = SearchData(2000);
+        string[] Search(string file, params string[] extra) => ["search", file, "--label", "y", "--task", "binary", "--looks", "1", "--quiet", .. extra];
+        foreach (var eol in LineEnds)
+        {
+            var text = Eol(data, eol);
+            var lastRow = text.LastIndexOf(eol, text.Length - eol.Length - 1, StringComparison.Ordinal) + eol.Length;
+            for (var k = lastRow + 1; k < text.Length - eol.Length; k++)
+            {
+                yield return new Case("search data", $"cut at {k} inside the last row ({Name(eol)})", Search(File(text[..k])), 3);
+            }
+
+            foreach (var (what, replacement) in new[]
+            {
+                ("an extra field", "d1499,0.5,Mon,yes,surplus"), ("a missing field", "d1499,0.5,yes"), ("a quote inside a field", "d1499,0.\"5,Mon,yes"),
+                ("text after a closing quote", "d1499,\"0.5\"x,Mon,yes"), ("a quote left open", "d1499,\"0.5,Mon,yes"), ("a NUL", "d1499,0.5,Mo\0n,yes"),
+                ("no label", "d1499,0.5,Mon,"), ("a label of NA", "d1499,0.5,Mon,NA"),
+            })
+            {
+                yield return new Case("search data", $"{what} on row 1500 ({Name(eol)})", Search(File(Eol(WithRow(data, 1500, replacement), eol))), 3);
+            }
+
+            var latin = Encoding.UTF8.GetBytes(Eol(WithRow(data, 1500, "d1499,0.5,MonX,yes"), eol));
+            latin[Array.LastIndexOf(latin, (byte)'X')] = 0xE9; // Latin-1 é: not UTF-8
+            yield return new Case("search data", $"a byte that is not UTF-8 on row 1500 ({Name(eol)})", Search(File(latin)), 3);
+            yield return new Case("search data", $"text in a numeric column of --validation on row 1500 ({Name(eol)})",
+                Search(File(text), "--validation", File(Eol(WithRow(data, 1500, "d1499,warm,Mon,yes"), eol))), 3);
+        }
+
+        yield return new Case("search data", "--finish without --share", Search(File(data), "--finish"), 2);
+        yield return new Case("search data", "--finish of a shared search the ledger does not have", Search(File(data), "--finish", "--share", "nobody"), 2);
+
         // Names: the argument itself is wrong (too long, empty, control characters), so these are bad arguments.
         foreach (var name in new[] { new string('n', 201), new string('n', 100_000), "", "   ", "a\nb", "a\tb", "a\0b", "\u001b[31mred" })
         {
@@ -349,6 +382,10 @@ public sealed class BadInputCorpusTests(ITestOutputHelper output) : IDisposable
         Assert.Single(final.Store.Looks(final.Holdout("validation")));
         Assert.Equal(["regression", "validation"], final.Store.Holdouts().Select(h => h.Name).Order());
     }
+
+    /// <summary>A search's data: an id, a number, a weekday and a yes/no label, invented.</summary>
+    private static string SearchData(int rows) =>
+        "id,x,day,y\n" + string.Concat(Enumerable.Range(0, rows).Select(i => $"d{i},{(i * 37 % 1000 / 1000.0).ToString("0.000", System.Globalization.CultureInfo.InvariantCulture)},{new[] { "Mon", "Tue", "Wed" }[i % 3]},{(i % 7 < 3 ? "yes" : "no")}\n"));
 
     private static string Name(string eol) => eol switch { "\n" => "LF", "\r\n" => "CRLF", _ => "CR" };
 

@@ -39,33 +39,21 @@ public abstract class SharedPlanContract
         var (first, plan) = Start(tasks);
         first.Dispose();
         var completed = new ConcurrentBag<(string Worker, int Task, int Look)>();
-        var errors = new ConcurrentBag<Exception>();
         // All workers start together, and each "trains" for a few milliseconds between claim and completion, as a real
         // worker does; otherwise the first thread to start can finish all 60 before the others have opened the ledger.
-        using var start = new Barrier(workers);
-        var threads = Enumerable.Range(0, workers).Select(w => new Thread(() =>
+        var books = Enumerable.Range(0, workers).Select(_ => Open(_clock)).ToList();
+        Together.Run(workers, w =>
         {
-            try
+            using var book = books[w];
+            var name = $"worker-{w}";
+            while (book.SharedPlans.Claim(plan, name, TimeSpan.FromMinutes(5)) is { Task: { } task })
             {
-                using var book = Open(_clock);
-                var name = $"worker-{w}";
-                start.SignalAndWait(TimeSpan.FromSeconds(60));
-                while (book.SharedPlans.Claim(plan, name, TimeSpan.FromMinutes(5)) is { Task: { } task })
-                {
-                    Thread.Sleep(5);
-                    var look = book.CompleteTask(plan, task.Number, name, Scored(task, task.Number % 10 / 10.0));
-                    Assert.NotNull(look); // nobody else can hold a task whose lease runs
-                    completed.Add((name, task.Number, look.Number));
-                }
+                Thread.Sleep(5);
+                var look = book.CompleteTask(plan, task.Number, name, Scored(task, task.Number % 10 / 10.0));
+                Assert.NotNull(look); // nobody else can hold a task whose lease runs
+                completed.Add((name, task.Number, look.Number));
             }
-            catch (Exception e)
-            {
-                errors.Add(e);
-            }
-        })).ToList();
-        threads.ForEach(t => t.Start());
-        threads.ForEach(t => t.Join());
-        Assert.Empty(errors);
+        });
 
         using var reader = Open(_clock);
         var stored = reader.SharedPlans.Tasks(plan);
@@ -267,6 +255,74 @@ public abstract class SharedPlanContract
         Assert.Equal(tasks, reader.Store.Looks(holdout).Count);
     }
 
+    [Fact]
+    public void The_closing_step_is_given_to_one_worker_once_the_plan_is_finished_and_taken_over_when_its_lease_runs_out()
+    {
+        const int workers = 5;
+        var (book, plan) = Start(2);
+        using var _ = book;
+        var head = book.Store.ChainHead();
+        Assert.Null(book.SharedPlans.FindSave(plan));
+        var early = book.SharedPlans.ClaimSave(plan, "a", Lease);
+        Assert.Equal((SaveState.Unfinished, 2), (early.State, early.Remaining)); // tasks remain: nothing to save yet
+        Assert.Null(book.SharedPlans.FindSave(plan));
+        while (book.SharedPlans.Claim(plan, "a", Lease) is { Task: { } task }) book.CompleteTask(plan, task.Number, "a", Scored(task, 0.4));
+        head = book.Store.ChainHead();
+
+        // Workers arriving together at the finished plan: exactly one is given the step, the others see it held.
+        var claims = new ConcurrentBag<SaveClaim>();
+        var books = Enumerable.Range(0, workers).Select(_ => Open(_clock)).ToList();
+        Together.Run(workers, w =>
+        {
+            using var worker = books[w];
+            claims.Add(worker.SharedPlans.ClaimSave(plan, $"w{w}", Lease));
+        });
+        var holder = Assert.Single(claims, c => c.State == SaveState.Claimed);
+        Assert.All(claims.Where(c => c != holder), c => Assert.Equal((SaveState.Held, holder.Worker), (c.State, c.Worker)));
+        Assert.Equal(1, holder.Attempts);
+
+        // While the holder renews, nobody else gets it; once it stops (as a killed worker does), the next claimant takes it over.
+        _clock.Advance(TimeSpan.FromSeconds(1.5));
+        Assert.True(book.SharedPlans.RenewSave(plan, holder.Worker!, Lease));
+        _clock.Advance(TimeSpan.FromSeconds(1.5));
+        Assert.Equal(SaveState.Held, book.SharedPlans.ClaimSave(plan, "late", Lease).State);
+        _clock.Advance(TimeSpan.FromSeconds(2.5));
+        var retaken = book.SharedPlans.ClaimSave(plan, "late", Lease);
+        Assert.Equal((SaveState.Claimed, "late", 2), (retaken.State, retaken.Worker, retaken.Attempts));
+        Assert.False(book.SharedPlans.RenewSave(plan, holder.Worker!, Lease));
+        Assert.False(book.SharedPlans.CompleteSave(plan, holder.Worker!, 1, "/old/record.json")); // the old holder's step is gone
+        Assert.True(book.SharedPlans.CompleteSave(plan, "late", 1, "/here/record.json"));
+        Assert.False(book.SharedPlans.CompleteSave(plan, "late", 1, "/here/record.json")); // done once
+
+        // Done: every later claimant is told who saved which look and where, and nothing of it is in the chain.
+        var saved = book.SharedPlans.ClaimSave(plan, "later", Lease);
+        Assert.Equal((SaveState.Saved, "late", 1, "/here/record.json"), (saved.State, saved.Worker, saved.Look, saved.Location));
+        Assert.Equal(saved, book.SharedPlans.FindSave(plan));
+        Assert.Equal(head, book.Store.ChainHead());
+        Assert.True(book.Verify().Valid);
+    }
+
+    [Fact]
+    public void The_best_score_of_a_plan_is_that_of_its_done_tasks_looks_only()
+    {
+        var (book, plan) = Start(3);
+        using var _ = book;
+        var holdout = book.Holdout("validation");
+        Assert.Null(book.SharedPlans.BestScore(plan, holdout));
+        // A look on the same holdout that no task of the plan made does not count.
+        book.Record("validation", "{\"trainer\":\"outside\"}", 0.05);
+        var scores = new[] { 0.30, 0.20, 0.25 };
+        while (book.SharedPlans.Claim(plan, "a", Lease) is { Task: { } task }) book.CompleteTask(plan, task.Number, "a", Scored(task, scores[task.Number - 1]));
+        Assert.Equal(0.20, book.SharedPlans.BestScore(plan, holdout));
+
+        // On a holdout where higher is better, the highest.
+        book.RegisterHoldout("accuracy", TempLedger.Examples(100), Metric.Accuracy);
+        var other = book.SharedPlans.OpenPlan("accuracy-plan", "accuracy", "{}", Tasks(2, "u"));
+        var accuracy = book.Holdout("accuracy");
+        while (book.SharedPlans.Claim(other, "a", Lease) is { Task: { } task }) book.CompleteTask(other, task.Number, "a", Scored(task, 0.6 + task.Number / 10.0));
+        Assert.Equal(0.8, book.SharedPlans.BestScore(other, accuracy)!.Value, 12);
+    }
+
     /// <summary>A clock the test moves by hand; shared by every connection of a test, as one machine's clock is.</summary>
     private sealed class TestClock : TimeProvider
     {
@@ -301,6 +357,30 @@ public sealed class SqliteSharedPlanTests : SharedPlanContract, IDisposable
         var report = book.Verify();
         Assert.True(report.Valid);
         Assert.Equal(2, report.Entries); // the holdout and the one look
+    }
+
+    [Fact]
+    public void A_ledger_whose_plan_tables_predate_the_closing_step_gets_its_table_when_a_worker_first_claims_it()
+    {
+        using var book = Open(TimeProvider.System);
+        book.RegisterHoldout("validation", TempLedger.Examples(10));
+        var plan = book.SharedPlans.OpenPlan("plan", "validation", "{}", [new PlannedTask("{\"trainer\":\"x\"}", null, 1, false)]);
+        var task = book.SharedPlans.Claim(plan, "a", TimeSpan.FromMinutes(1)).Task!;
+        book.CompleteTask(plan, task.Number, "a", new LookInput { Configuration = task.Configuration, Score = 0.5 });
+        // What a ledger made before the closing step existed holds: the plan tables without shared_saves.
+        using (var connection = new Microsoft.Data.Sqlite.SqliteConnection($"Data Source={_temp.Path};Pooling=False"))
+        {
+            connection.Open();
+            using var drop = connection.CreateCommand();
+            drop.CommandText = "DROP TABLE shared_saves;";
+            drop.ExecuteNonQuery();
+        }
+
+        using var reopened = Bookkeeper.Open(_temp.Path);
+        Assert.Null(reopened.SharedPlans.FindSave(plan));
+        Assert.Equal(SaveState.Claimed, reopened.SharedPlans.ClaimSave(plan, "b", TimeSpan.FromMinutes(1)).State);
+        Assert.True(reopened.SharedPlans.CompleteSave(plan, "b", 1, "/record.json"));
+        Assert.True(reopened.Verify().Valid);
     }
 }
 

@@ -1,7 +1,6 @@
-using Accountant.Ledger;
+using Accountant.Search.Data;
 using Accountant.Search.Trainers;
 using Accountant.Statements;
-using Microsoft.ML;
 
 namespace Accountant.Search.Demo;
 
@@ -36,17 +35,13 @@ public sealed record DemoOutcome(
     long FreshRows);
 
 /// <summary>
-/// The whole job on the invented bakery scenario: draw training and validation days, register the validation days
-/// as a holdout, run a real ML.NET random search recording every look, then measure the selected model's true error
-/// on a large fresh sample, so the optimism of the best validation score and the correction are seen side by side.
+/// The whole job on the invented bakery scenario: draw training and validation days, and run <see cref="TabularSearch"/> on
+/// them as rows held in memory (the validation days registered as the holdout, every look recorded, no test set sealed);
+/// then measure the selected model's true error on a large fresh sample, so the optimism of the best validation score and
+/// the correction are seen side by side.
 /// </summary>
-public static class DemoRunner
+public static class BakeryDemo
 {
-    public static IEstimator<ITransformer> Featurizer(MLContext ml) =>
-        ml.Transforms.Categorical.OneHotEncoding("WeekdayOneHot", nameof(BakeryDay.Weekday))
-            .Append(ml.Transforms.Concatenate("Features", "WeekdayOneHot", nameof(BakeryDay.Temperature), nameof(BakeryDay.Rain),
-                nameof(BakeryDay.StreetEvent), nameof(BakeryDay.Loaves), nameof(BakeryDay.Price), nameof(BakeryDay.HoursOpen)));
-
     public static DemoOutcome Run(Bookkeeper book, DemoOptions options, IProgress<SearchProgress>? progress = null, CancellationToken cancel = default)
     {
         if (options.Looks < 1 || options.TrainingRows < 10 || options.ValidationRows < 10 || options.FreshRows < 1000)
@@ -54,32 +49,34 @@ public static class DemoRunner
             throw AccountantException.BadArguments("the demo needs at least 1 look, 10 training and 10 validation rows, and 1,000 fresh rows.");
         }
 
-        var ml = new MLContext(options.Seed);
+        if (options.Strategy is not ("random" or "refine"))
+        {
+            throw AccountantException.BadArguments($"unknown strategy '{options.Strategy}'; use random or refine.");
+        }
+
         var training = BakeryScenario.Generate(options.TrainingRows, options.Seed, "train-");
         var validation = BakeryScenario.Generate(options.ValidationRows, options.Seed + 1, "day-");
-        var holdout = book.EnsureHoldout(options.HoldoutName,
-            validation.Select(d => new HoldoutExample(d.Id, BinarySearchRunner.LabelText(d.Label))).ToList());
-
-        ISearchStrategy strategy = options.Strategy switch
+        var search = new TabularSearch(book, book.Store.Location).Run(new TabularSearchOptions
         {
-            "random" => new RandomStrategy(BinaryTrainers.DefaultSpace, options.Looks, options.Seed),
-            "refine" => new RefineStrategy(BinaryTrainers.DefaultSpace, options.Looks, options.Seed),
-            _ => throw AccountantException.BadArguments($"unknown strategy '{options.Strategy}'; use random or refine."),
-        };
-        var runner = new BinarySearchRunner(ml, Featurizer(ml));
-        var search = runner.Run(book, holdout, ml.Data.LoadFromEnumerable(training), ml.Data.LoadFromEnumerable(validation),
-            validation.Select(d => d.Id).ToList(), strategy, options.Looks, $"demo-{options.Strategy}-seed{options.Seed}", options.Guard, progress, cancel);
+            DataPath = "bakery", Rows = BakeryScenario.Rows("the bakery scenario's training days", training),
+            ValidationRows = BakeryScenario.Rows("the bakery scenario's validation days", validation),
+            Label = "sold_out", IdColumn = "day", Task = TaskKind.Binary, TestFraction = 0, Seed = options.Seed,
+            SpacePath = null, Strategy = options.Strategy, Looks = options.Looks, Guard = options.Guard, HoldoutName = options.HoldoutName,
+            SearchLabel = $"demo-{options.Strategy}-seed{options.Seed}", Statement = options.Statement,
+        }, progress, note: null, cancel);
 
         double trueError = double.NaN, stdErr = double.NaN, bayes = double.NaN;
         long rows = 0;
-        if (search.BestModel is { } model)
+        if (search.Selected is { } selected)
         {
             var fresh = BakeryScenario.Generate(options.FreshRows, options.Seed + 2, "fresh-");
-            trueError = runner.Error(model, ml.Data.LoadFromEnumerable(fresh), out rows);
+            (trueError, var scored) = selected.Score(BakeryScenario.Rows("the bakery scenario's fresh days", fresh));
+            rows = scored;
             stdErr = Math.Sqrt(trueError * (1 - trueError) / rows);
             bayes = BakeryScenario.BayesError(fresh);
         }
 
-        return new DemoOutcome(book.Statement(holdout.Name, options.Statement), search, trueError, stdErr, bayes, rows);
+        return new DemoOutcome(search.Statement, search.Search, trueError, stdErr, bayes, rows);
     }
+
 }
