@@ -106,6 +106,8 @@ public sealed partial class Bookkeeper : IDisposable
 
         var prepared = new List<HoldoutExample>();
         var seen = new Dictionary<string, int>(StringComparer.Ordinal);
+        // Labels repeat (a handful of classes over many examples): each distinct spelling is canonicalized once.
+        var canonical = new Dictionary<string, string>(StringComparer.Ordinal);
         var row = 0;
         foreach (var example in examples)
         {
@@ -121,7 +123,12 @@ public sealed partial class Bookkeeper : IDisposable
                 throw AccountantException.BadInput($"examples {seen[id]} and {row} of the holdout share the id '{Losses.Shorten(id)}' (after trimming spaces); ids must be unique.");
             }
 
-            var label = Fingerprint.CanonicalLabel(example.Label);
+            if (!canonical.TryGetValue(example.Label, out var label))
+            {
+                label = Fingerprint.CanonicalLabel(example.Label);
+                if (canonical.Count < 4096) canonical[example.Label] = label;
+            }
+
             if (label.Length == 0)
             {
                 throw AccountantException.BadInput($"example '{Losses.Shorten(id)}' of the holdout has an empty label; give every example its label.");
@@ -150,8 +157,12 @@ public sealed partial class Bookkeeper : IDisposable
             throw AccountantException.BadInput("an auc holdout needs both positive (1) and negative (0) examples.");
         }
 
-        prepared.Sort((a, b) => string.CompareOrdinal(a.Id, b.Id));
-        return Store.AddHoldout(name, metric, range, prepared);
+        // Sorted by id, ordinal (ids are unique, so the order is total); keys and items side by side sort fastest.
+        var ids = new string[prepared.Count];
+        var items = prepared.ToArray();
+        for (var i = 0; i < items.Length; i++) ids[i] = items[i].Id;
+        Array.Sort(ids, items, StringComparer.Ordinal);
+        return Store.AddHoldout(name, metric, range, items);
     }
 
     /// <summary>
