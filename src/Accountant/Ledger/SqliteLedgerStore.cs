@@ -53,13 +53,48 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
             throw new AccountantException(ErrorKind.LedgerUnusable, $"the folder '{directory}' does not exist; create it first or choose another --ledger path.");
         }
 
-        return Open(path, clock, create: true);
+        // Built whole under a temporary name beside it, closed (which folds the write-ahead log into the file), then moved
+        // into place in one step: a process killed while creating leaves no ledger at the path, never an empty or half-made
+        // one that the next run would have to refuse.
+        var building = Path.Combine(directory ?? ".", $".{Path.GetFileName(path)}.creating-{Guid.NewGuid():N}");
+        try
+        {
+            using (Open(building, clock, create: true, shownAs: path))
+            {
+            }
+
+            try
+            {
+                File.Move(building, path, overwrite: false);
+            }
+            catch (IOException) when (File.Exists(path))
+            {
+                // Another process put a ledger (or a file) there meanwhile: this one is not needed.
+                throw new AccountantException(ErrorKind.LedgerUnusable, $"a file already exists at '{path}'; choose another --ledger path or use the existing ledger.");
+            }
+            catch (Exception e) when (e is IOException or UnauthorizedAccessException)
+            {
+                throw new AccountantException(ErrorKind.LedgerUnusable, $"the ledger '{path}' could not be created ({e.Message.TrimEnd('.')}); check that its folder is writable.", e);
+            }
+        }
+        finally
+        {
+            foreach (var leftover in new[] { building, building + "-wal", building + "-shm", building + "-journal" })
+            {
+                try { File.Delete(leftover); } catch (Exception e) when (e is IOException or UnauthorizedAccessException) { }
+            }
+        }
+
+        return Open(path, clock);
     }
 
     /// <summary>Opens an existing ledger, or creates it when <paramref name="create"/> is set and the file is missing.</summary>
     /// <param name="busyTimeout">How long a write waits for another writer's lock (SQLite retries with growing pauses
     /// meanwhile) before it fails with a clear error; <see cref="BusyTimeout"/> unless given.</param>
-    public static SqliteLedgerStore Open(string path, TimeProvider? clock = null, bool create = false, TimeSpan? busyTimeout = null)
+    public static SqliteLedgerStore Open(string path, TimeProvider? clock = null, bool create = false, TimeSpan? busyTimeout = null) =>
+        Open(path, clock, create, busyTimeout, shownAs: null);
+
+    private static SqliteLedgerStore Open(string path, TimeProvider? clock, bool create, TimeSpan? busyTimeout = null, string? shownAs = null)
     {
         var timeout = busyTimeout ?? BusyTimeout;
         var exists = File.Exists(path);
@@ -92,7 +127,7 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
         catch (SqliteException e)
         {
             connection.Dispose();
-            throw Translate(e, path, timeout);
+            throw Translate(e, shownAs ?? path, timeout);
         }
         catch
         {

@@ -160,4 +160,48 @@ public sealed class CrashTests(ITestOutputHelper output)
 
         output.WriteLine($"{SearchKills} SIGKILLs of 'search' (6 looks, uninterrupted {duration:0} ms): {string.Join("; ", found)}; every ledger verified.");
     }
+
+    [Fact]
+    public void Init_killed_at_random_moments_leaves_a_whole_ledger_or_none()
+    {
+        // A new SQLite ledger is built under a temporary name and moved into place: after a kill at any moment there is
+        // either no file at the path or a ledger that opens and verifies, never an empty or half-made file that the next
+        // run would have to refuse.
+        using var cli = new CliHarness();
+        // The first run warms the disk cache; the second tells how long an init takes here.
+        Assert.Equal(0, Processes.Run(Processes.Cli, "init", "--ledger", Path.Combine(cli.Folder, "warm.db")).Exit);
+        var timer = Stopwatch.StartNew();
+        Assert.Equal(0, Processes.Run(Processes.Cli, "init", "--ledger", Path.Combine(cli.Folder, "whole.db")).Exit);
+        var duration = timer.Elapsed.TotalMilliseconds;
+        var random = new Random(11);
+        int none = 0, whole = 0;
+        const int kills = 30;
+        for (var kill = 0; kill < kills; kill++)
+        {
+            var ledger = Path.Combine(cli.Folder, $"init-{kill}.db");
+            // Stratified over 30–130% of an uninterrupted init, so that kills land before, during and after the creation.
+            var delay = (0.3 + (kill + random.NextDouble()) / kills) * duration;
+            using (var running = new Processes.Running(Processes.Cli, ["init", "--ledger", ledger]))
+            {
+                Thread.Sleep(TimeSpan.FromMilliseconds(delay));
+                running.Kill();
+            }
+
+            if (!File.Exists(ledger))
+            {
+                none++;
+                Assert.Equal(0, cli.Run("init", "--ledger", ledger).Exit); // nothing in the way of a new one
+            }
+            else
+            {
+                whole++;
+            }
+
+            using var book = Bookkeeper.Open(ledger);
+            Assert.True(book.Verify().Valid);
+            Assert.Empty(book.Store.Holdouts());
+        }
+
+        output.WriteLine($"{kills} SIGKILLs of 'init' (uninterrupted {duration:0} ms): {none} left no ledger, {whole} a whole one, none an empty or partial file.");
+    }
 }
