@@ -111,9 +111,10 @@ internal static class LedgerReads
     /// database row by row. Since the looks of a holdout have distinct numbers, at most |voided| of them are voided, so
     /// the first |voided| + 1 looks in any order hold a non-voided one when there is one; the walk never reads more.
     /// Testing the voids in SQL instead cost more than the rest of a statement on a million looks when it ran on every row
-    /// of the counting pass, and on PostgreSQL its speed rests on the planner: a <c>NOT EXISTS</c> anti-join planned
-    /// before the voids table was analyzed ran for over ten minutes on 200,000 voids (a nested loop over the voids for each
-    /// look), and a <c>NOT IN</c> list larger than <c>work_mem</c> is not hashed but searched for each row.
+    /// of the counting pass, and on PostgreSQL its speed rests on the planner: with 200,000 of a million looks voided
+    /// (the best ones), <c>NOT EXISTS</c> under <c>ORDER BY score LIMIT 1</c> was planned as a nested loop over the voids
+    /// for each look, with statistics and without, and ran for over half an hour; a <c>NOT IN</c> list larger than
+    /// <c>work_mem</c> is not hashed but searched for each row.
     /// </remarks>
     public static Statements.LookTally Tally(DbConnection connection, Holdout holdout, IReadOnlySet<int> voided)
     {
