@@ -1,11 +1,15 @@
 #!/usr/bin/env bash
 # Benchmarks for Accountant, run by hand (not part of 'dotnet test' or CI): bash bench/run.sh
 # Each figure is a ratio of two things measured side by side in this one run, on this machine.
+# 'bash bench/run.sh statement-postgres' runs only that section (after the build); BENCH_WORK=DIR keeps the work files,
+# the million-look ledgers among them, for the next run.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 export DOTNET_CLI_TELEMETRY_OPTOUT=1 DOTNET_NOLOGO=1
 WORK="${BENCH_WORK:-$(mktemp -d -t accountant-bench.XXXXXX)}"
 mkdir -p "$WORK"
+ONLY="${1:-}"
+case "$ONLY" in ""|statement-postgres) ;; *) echo "usage: bash bench/run.sh [statement-postgres]" >&2; exit 2 ;; esac
 
 # NumPy as a practitioner has it on Debian, with OpenBLAS (without it NumPy falls back to the reference BLAS).
 if ! /usr/bin/python3 -c 'import numpy' 2>/dev/null || [ ! -e /usr/lib/x86_64-linux-gnu/openblas-pthread/libblas.so.3 ]; then
@@ -29,6 +33,17 @@ median_ms() {
     echo $(( (end - start) / 1000000 ))
   done | sort -n | sed -n 4p
 }
+# Median wall times in milliseconds of two commands run in turn 9 times each (after one untimed run of each), so that
+# a change in the machine's load falls on both alike: prints "A B".
+median_pair_ms() {
+  "$1" >/dev/null 2>&1 || true; "$2" >/dev/null 2>&1 || true
+  local a=() b=() start end
+  for _ in 1 2 3 4 5 6 7 8 9; do
+    start=$(date +%s%N); "$1" >/dev/null 2>&1; end=$(date +%s%N); a+=($(( (end - start) / 1000000 )))
+    start=$(date +%s%N); "$2" >/dev/null 2>&1; end=$(date +%s%N); b+=($(( (end - start) / 1000000 )))
+  done
+  echo "$(printf '%s\n' "${a[@]}" | sort -n | sed -n 5p) $(printf '%s\n' "${b[@]}" | sort -n | sed -n 5p)"
+}
 
 echo
 echo "== machine"
@@ -36,6 +51,7 @@ echo "cpu: $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | xargs), $(nproc
 $BENCH peak | tee "$WORK/peak.txt"
 echo "blas: $(readlink -f /usr/lib/x86_64-linux-gnu/libblas.so.3)"
 
+if [ -z "$ONLY" ]; then
 echo
 echo "== bootstrap: K = 1,000 looks, n = 10,000 examples, B = 1,000 resamples (bootstrap-bias and max-bootstrap)"
 $BENCH bootstrap 1000 10000 1000 1 "$WORK/losses.u8" | tee "$WORK/bootstrap.txt"
@@ -83,5 +99,37 @@ echo "== peak memory of the bootstrap run (statement --estimates --winner on 1,0
 loss_kb=$(( $(value loss_bytes "$WORK/bootstrap.txt") / 1024 ))
 echo "loss data read: ${loss_kb} KB; peak resident memory: $(cat "$WORK/rss.txt") KB (process start alone: $(cat "$WORK/rss-version.txt") KB)"
 echo "RATIO peak memory beyond start / loss data: $(ratio "$(( $(cat "$WORK/rss.txt") - $(cat "$WORK/rss-version.txt") ))" "$loss_kb")"
+fi
+
+echo
+echo "== accountant statement on 1,000,000 looks: a PostgreSQL ledger over loopback against the SQLite file, same looks"
+echo "load average before: $(cut -d' ' -f1-3 /proc/loadavg)"
+ls /usr/lib/postgresql/*/bin/initdb >/dev/null 2>&1 || { apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq postgresql >/dev/null; }
+chmod 755 "$WORK"
+[ -f "$WORK/million.db" ] || $BENCH ledger-scores "$WORK/million.db" 1000000
+"$CLI" statement big --ledger "$WORK/million.db" >/dev/null   # first open builds the tally index of an old ledger; not timed
+PG=$(bash .ci/postgres.sh start "$WORK/pg-statement")
+trap 'bash .ci/postgres.sh stop "$WORK/pg-statement"' EXIT
+PG_BIG="$PG;SearchPath=million"
+# The same seeded looks through the library's batch append (10 batches of 100,000), then VACUUM (ANALYZE), the state
+# autovacuum leaves a table in within a minute or so of a large write.
+$BENCH ledger-scores "$PG_BIG" 1000000
+sqlite_statement() { "$CLI" statement big --ledger "$WORK/million.db"; }
+pg_statement() { "$CLI" statement big --ledger "$PG_BIG"; }
+# Both ledgers hold the same looks (only timestamps, and so the chain, differ): the statements must agree but for it.
+if ! diff <(sqlite_statement | grep -v '^Chain head') <(pg_statement | grep -v '^Chain head') >/dev/null; then
+  echo "the PostgreSQL and SQLite statements differ:" >&2
+  diff <(sqlite_statement) <(pg_statement) >&2 || true
+  exit 1
+fi
+echo "statements: the same on both ledgers but for the chain head"
+start_ms=$(median_ms "$CLI" --version)
+read -r sqlite_ms pg_ms < <(median_pair_ms sqlite_statement pg_statement)
+echo "process start alone (accountant --version): ${start_ms} ms"
+echo "statement, 1,000,000 looks, SQLite: ${sqlite_ms} ms, beyond start $((sqlite_ms - start_ms)) ms"
+echo "statement, 1,000,000 looks, PostgreSQL: ${pg_ms} ms, beyond start $((pg_ms - start_ms)) ms"
+echo "RATIO statement on 1,000,000 looks, PostgreSQL / SQLite: $(ratio "$pg_ms" "$sqlite_ms")  (target <= 2.0; beyond process start: $(ratio "$((pg_ms - start_ms))" "$((sqlite_ms - start_ms))"))"
+echo "load average after: $(cut -d' ' -f1-3 /proc/loadavg)"
+
 echo
 echo "work files in $WORK"

@@ -51,8 +51,9 @@ public interface ILedgerStore : IDisposable
     IReadOnlyList<LookVoid> Voids(Holdout holdout);
 
     /// <summary>
-    /// The counts a statement needs and the best non-voided look (lowest score, or highest for accuracy; the earliest on
-    /// ties), without reading every look. Backends may compute it in the database; this default reads every look.
+    /// The counts a statement needs and the best look whose number is not in <paramref name="voided"/> (lowest score, or
+    /// highest when higher is better; the earliest on ties), without reading every look. Backends may compute it in the
+    /// database (both do, through <see cref="LedgerReads.Tally"/>); this default reads every look.
     /// </summary>
     Statements.LookTally Tally(Holdout holdout, IReadOnlySet<int> voided)
     {

@@ -583,50 +583,11 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
 
     public IReadOnlyList<Look> Looks(Holdout holdout) => Guarded(() => LedgerReads.Looks(_connection, holdout));
 
-    /// <summary>
-    /// Counts in one pass over the covering index <c>looks_by_score</c> (no table row and no blob is touched), finds the
-    /// best score by walking that index from the better end past voided looks, then reads the one best look in full; all
-    /// in one read transaction, so the counts and the best look come from the same ledger state.
-    /// </summary>
-    /// <remarks>
-    /// The best score is not an aggregate of the counting pass: a per-row void test (a CASE over a subquery) in that pass
-    /// cost more than the rest of the statement on a million looks, and the index already holds the scores in order.
-    /// </remarks>
+    /// <summary>The tally of <see cref="LedgerReads.Tally"/>, in one read transaction (a deferred transaction sees one state of the WAL).</summary>
     public Statements.LookTally Tally(Holdout holdout, IReadOnlySet<int> voided) => Guarded(() =>
     {
         using var snapshot = _connection.BeginTransaction(deferred: true);
-        using var counts = Command("""
-            SELECT count(*), count(*) FILTER (WHERE adaptive <> 0), count(*) FILTER (WHERE loss_encoding = 0)
-            FROM looks WHERE holdout_id = $id;
-            """);
-        counts.Parameters.AddWithValue("$id", holdout.Key);
-        int looks, adaptive, scoreOnly;
-        using (var reader = counts.ExecuteReader())
-        {
-            reader.Read();
-            looks = reader.GetInt32(0);
-            adaptive = reader.GetInt32(1);
-            scoreOnly = reader.GetInt32(2);
-        }
-
-        using var top = Command($"""
-            SELECT score FROM looks
-            WHERE holdout_id = $id AND number NOT IN (SELECT look_number FROM voids WHERE holdout_id = $id)
-            ORDER BY score {(holdout.Metric.HigherIsBetter() ? "DESC" : "ASC")} LIMIT 1;
-            """);
-        top.Parameters.AddWithValue("$id", holdout.Key);
-        double? bestScore = null;
-        using (var reader = top.ExecuteReader())
-        {
-            if (reader.Read()) bestScore = reader.GetDouble(0);
-        }
-
-        var best = bestScore is { } score ? LedgerReads.EarliestWithScore(_connection, holdout, score) : null;
-
-        // Adaptive accounting needs the order of adaptive flags and guards; read those two columns only when it applies.
-        var pattern = adaptive > 0 ? LedgerReads.AdaptivePattern(_connection, holdout, looks) : null;
-
-        return new Statements.LookTally(looks, adaptive, scoreOnly, best, pattern);
+        return LedgerReads.Tally(_connection, holdout, voided);
     });
 
     public IReadOnlyList<LookVoid> Voids(Holdout holdout) => Guarded(() => LedgerReads.Voids(_connection, holdout));

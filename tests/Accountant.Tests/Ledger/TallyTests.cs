@@ -10,6 +10,18 @@ public class TallyTests
     /// <summary>A store that keeps the interface's default tally, which reads every look.</summary>
     private sealed class DefaultTally(ILedgerStore inner) : ForwardingStore(inner);
 
+    /// <summary>The store's tally of a holdout, checked equal to the default one (pattern included), with the ledger's voids.</summary>
+    private static LookTally TallyEqualToDefinition(Bookkeeper book, string holdoutName)
+    {
+        var holdout = book.Holdout(holdoutName);
+        var voided = book.Store.Voids(holdout).Select(v => v.LookNumber).ToHashSet();
+        var fast = book.Store.Tally(holdout, voided);
+        var reference = ((ILedgerStore)new DefaultTally(book.Store)).Tally(holdout, voided);
+        Assert.Equal(reference with { Pattern = null }, fast with { Pattern = null });
+        Assert.Equal(reference.Pattern, fast.Pattern);
+        return fast;
+    }
+
     [Theory]
     [InlineData(Metric.Error, Backend.Sqlite)]
     [InlineData(Metric.Accuracy, Backend.Sqlite)]
@@ -75,20 +87,85 @@ public class TallyTests
             if (scores[i] == better || (scores[i] == second && i % 2 == 0)) book.Void("v", i + 1, "a mistake");
         }
 
-        foreach (var name in new[] { "v", "empty" })
-        {
-            var holdout = book.Holdout(name);
-            var voided = book.Store.Voids(holdout).Select(v => v.LookNumber).ToHashSet();
-            var fast = book.Store.Tally(holdout, voided);
-            var reference = ((ILedgerStore)new DefaultTally(book.Store)).Tally(holdout, voided);
-            Assert.Equal(reference with { Pattern = null }, fast with { Pattern = null });
-            Assert.Equal(reference.Pattern, fast.Pattern);
-        }
-
+        TallyEqualToDefinition(book, "empty");
         // The best is the earliest look with the second-best score that is not voided: an odd index.
-        var best = book.Store.Tally(book.Holdout("v"), book.Store.Voids(book.Holdout("v")).Select(v => v.LookNumber).ToHashSet()).Best!;
+        var best = TallyEqualToDefinition(book, "v").Best!;
         Assert.Equal(second, best.Score);
         Assert.Equal(Enumerable.Range(0, scores.Length).First(i => scores[i] == second && i % 2 == 1) + 1, best.Number);
+    }
+
+    [Theory]
+    [InlineData(Metric.Error, Backend.Sqlite)]
+    [InlineData(Metric.Accuracy, Backend.Sqlite)]
+    [InlineData(Metric.Auc, Backend.Sqlite)]
+    [InlineData(Metric.Error, Backend.Postgres)]
+    [InlineData(Metric.Accuracy, Backend.Postgres)]
+    [InlineData(Metric.Auc, Backend.Postgres)]
+    public void Past_many_voided_ties_and_with_every_look_voided_the_tally_equals_the_definition(Metric metric, Backend backend)
+    {
+        // The tally walks the score index from the better end in pages (rows 0–15, 16–79, 80–335, ...) past voided looks,
+        // then walks the looks tied on the best score by number. "ties-16" and "ties-80": 97 looks share the best score and
+        // all of them are voided but one, the 17th (or 81st) by number, which is then the 81st (or 17th) from the other end:
+        // the one look a walk must find sits on a page boundary from either end. Looks that are not the best are voided
+        // too, some twice. "all": every look voided. "others": only looks that are not the best are voided.
+        using var temp = new TempLedger(backend);
+        var examples = TempLedger.Examples(20);
+        using var book = temp.Create();
+        var random = new Random(2024);
+        var better = metric.HigherIsBetter() ? 0.9 : 0.1;
+        // Scores on the holdout's grid of k/20; the best value is never drawn by the random part.
+        double Other() => (metric.HigherIsBetter() ? random.Next(4, 18) : random.Next(3, 17)) / 20.0;
+        var scores = new Dictionary<string, double[]>
+        {
+            ["ties-16"] = Enumerable.Range(0, 194).Select(i => i % 2 == 0 ? better : Other()).ToArray(),
+            ["ties-80"] = Enumerable.Range(0, 194).Select(i => i % 2 == 1 ? better : Other()).ToArray(),
+            ["all"] = Enumerable.Range(0, 40).Select(i => i % 4 == 0 ? better : Other()).ToArray(),
+            ["others"] = Enumerable.Range(0, 120).Select(i => i % 10 == 7 ? better : Other()).ToArray(),
+        };
+        var kept = new Dictionary<string, int>();
+        var voids = new Dictionary<string, List<int>>();
+        foreach (var (name, values) in scores)
+        {
+            book.RegisterHoldout(name, examples, metric);
+            book.RecordMany(name, values.Select((score, i) => new LookInput { Configuration = $$"""{"k":{{i}}}""", Score = score, Adaptive = i % 9 == 0 }).ToList());
+            var tied = Enumerable.Range(1, values.Length).Where(n => values[n - 1] == better).ToList();
+            var notBest = Enumerable.Range(1, values.Length).Where(n => values[n - 1] != better).ToList();
+            if (name.StartsWith("ties-", StringComparison.Ordinal))
+            {
+                Assert.Equal(97, tied.Count);
+                kept[name] = tied[int.Parse(name[5..], System.Globalization.CultureInfo.InvariantCulture)];
+            }
+
+            voids[name] = name switch
+            {
+                "all" => [.. Enumerable.Range(1, values.Length), 1, 2],
+                "others" => [.. notBest.Where(n => n % 3 == 0), .. notBest.Where(n => n % 6 == 0)],
+                _ => [.. tied.Where(n => n != kept[name]), .. notBest.Where(n => n % 5 == 0), .. notBest.Where(n => n % 25 == 0)],
+            };
+            foreach (var number in voids[name]) book.Void(name, number, "a mistake");
+        }
+
+        foreach (var (name, values) in scores)
+        {
+            var fast = TallyEqualToDefinition(book, name);
+
+            // The definition written out here as well: the lowest score (highest when higher is better) among the looks
+            // not voided, the earliest look on ties.
+            var candidates = Enumerable.Range(1, values.Length).Where(n => !voids[name].Contains(n)).ToList();
+            int? expected = candidates.Count == 0 ? null
+                : candidates.OrderBy(n => metric.HigherIsBetter() ? -values[n - 1] : values[n - 1]).ThenBy(n => n).First();
+            Assert.Equal(expected, fast.Best?.Number);
+            Assert.Equal(values.Length, fast.Looks);
+            Assert.Equal(values.Length, fast.ScoreOnly);
+            Assert.Equal(Enumerable.Range(0, values.Length).Count(i => i % 9 == 0), fast.Adaptive);
+            if (fast.Best is { } best) Assert.Equal($$"""{"k":{{best.Number - 1}}}""", best.Configuration);
+        }
+
+        // The statement selects the one tied look left, none when all are voided, and the first best look otherwise.
+        Assert.Equal(kept["ties-16"], book.Statement("ties-16").Best!.Number);
+        Assert.Equal(kept["ties-80"], book.Statement("ties-80").Best!.Number);
+        Assert.Null(book.Statement("all").Best);
+        Assert.Equal(8, book.Statement("others").Best!.Number);
     }
 
     [Theory]
