@@ -103,6 +103,24 @@ public abstract class CorrelationAwareContract(Backend backend) : IDisposable
     }
 
     [Fact]
+    public void Losses_of_the_wrong_example_count_are_refused_in_one_line_and_nothing_is_written()
+    {
+        const int n = 400;
+        using var book = _temp.Create();
+        book.RegisterHoldout("validation", TempLedger.Examples(n));
+        book.RecordMany("validation", [new LookInput { Configuration = "{}", Losses = Losses(n, 60, 5, 0) }]);
+        var head = book.Store.ChainHead();
+        var error = Assert.Throws<AccountantException>(() => book.RecordMany("validation", [
+            new LookInput { Configuration = """{"k":1}""", Losses = Losses(n, 60, 6, 1) },
+            new LookInput { Configuration = """{"k":2}""", Losses = new byte[(n + 7) / 8 + 1] },
+        ]));
+        Assert.Equal(ErrorKind.BadInput, error.Kind);
+        Assert.Equal("look 2 of 2: the loss bitset holds 51 bytes, but holdout 'validation' has 400 examples and needs 50; give one bit per example in id order. Nothing was recorded.", error.Message);
+        Assert.DoesNotContain('\n', error.Message);
+        Assert.Equal(head, book.Store.ChainHead());
+    }
+
+    [Fact]
     public void Voids_do_not_change_the_anchors_and_the_estimates_path_gives_the_same_bound()
     {
         // The anchors are fixed by which looks exist, not by which were voided later; and a statement that reads every look
