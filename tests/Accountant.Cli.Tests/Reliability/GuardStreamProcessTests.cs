@@ -70,12 +70,19 @@ public abstract class GuardStreamProcessContract(bool postgres, ITestOutputHelpe
         string[] Args(int writer, int count, int first) =>
             [ledger, "validation", writer.ToString(CultureInfo.InvariantCulture), count.ToString(CultureInfo.InvariantCulture), "guarded", first.ToString(CultureInfo.InvariantCulture)];
 
-        // Writer 0 is killed once it has been told a few releases; a new process then records the looks it had not been told.
+        // The writers below block a thread each while their process runs, and the processes' output arrives on the thread
+        // pool: enough threads that a loaded machine does not starve the readers (the kill below waits on what it reads).
+        ThreadPool.GetMinThreads(out var workers, out var ports);
+        ThreadPool.SetMinThreads(Math.Max(workers, 4 * Writers), ports);
+
+        // Writer 0 (20 ms between looks) is killed once it has been told a few releases, at a moment within its next look
+        // or pause; a new process then records the looks it had not been told.
         var victim = Task.Run(() =>
         {
-            using var running = new Processes.Running(Processes.LoadWriter, Args(0, LooksEach, 0), new Dictionary<string, string?> { ["ACCOUNTANT_LOAD_PAUSE_MS"] = "10" });
+            using var running = new Processes.Running(Processes.LoadWriter, Args(0, LooksEach, 0), new Dictionary<string, string?> { ["ACCOUNTANT_LOAD_PAUSE_MS"] = "20" });
             var waited = Stopwatch.StartNew();
             while (running.Out.Split('\n', StringSplitOptions.RemoveEmptyEntries).Length < 12 && !running.Process.HasExited && waited.Elapsed < TimeSpan.FromMinutes(2)) Thread.Sleep(2);
+            Thread.Sleep(Random.Shared.Next(25));
             running.Kill();
             var told = Acks(running.Out).ToList();
             Collect("writer 0 (killed)", new Processes.Finished(running.Process.ExitCode, running.Out, ""), killed: true);
