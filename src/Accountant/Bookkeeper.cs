@@ -419,16 +419,28 @@ public sealed partial class Bookkeeper : IDisposable
         var inputs = Inputs(holdout);
         if (!options.Estimates && !options.Winner)
         {
-            // Counts and the best look only: no other look's configuration and no per-example losses are read
-            // (but the best look's, for empirical Bernstein on bounded losses).
+            // Counts and the best look first: no other look's configuration is read, and per-example losses only when the
+            // correlation-aware guarantee applies (every look non-adaptive with 0/1 losses), streamed once.
             var tally = Store.Tally(holdout, voids.Select(v => v.LookNumber).ToHashSet());
-            return StatementBuilder.Build(holdout, tally, voids, Store.ChainHead(), options, inputs);
+            return StatementBuilder.Build(holdout, tally, voids, Store.ChainHead(), options, WithChained(holdout, tally, inputs));
         }
 
         // The methods that need per-example losses (--estimates, --winner) read every look.
         var looks = Store.Looks(holdout);
-        var statement = StatementBuilder.Build(holdout, looks, voids, Store.ChainHead(), options, inputs);
+        var voidedNumbers = voids.Select(v => v.LookNumber).ToHashSet();
+        var all = new LookTally(looks.Count, looks.Count(l => l.Adaptive), looks.Count(l => !l.HasLosses), StatementBuilder.SelectBest(holdout.Metric, looks, voidedNumbers),
+            looks.Any(l => l.Adaptive) ? looks.Select(StatementBuilder.Accounted).ToList() : null);
+        var statement = StatementBuilder.Build(holdout, all, voids, Store.ChainHead(), options, WithChained(holdout, all, inputs));
         return PerExampleMethods.Add(statement, Store, looks, voids);
+    }
+
+    /// <summary>The statement's inputs with the correlation-aware guarantee's anchors, or the reason it is left out.</summary>
+    private StatementInputs WithChained(Holdout holdout, LookTally tally, StatementInputs inputs)
+    {
+        var why = CorrelationAware.NotApplicable(holdout, tally);
+        if (!CorrelationAware.Applies(why)) return inputs with { ChainedNote = why };
+        var (chained, note) = CorrelationAware.Build(holdout, Store.LossRows(holdout), tally.Best!.Number);
+        return inputs with { Chained = chained, ChainedNote = note };
     }
 
     /// <summary>What a statement on this holdout needs beyond its looks: the AUC's positives, per-example losses on demand, the openings.</summary>

@@ -437,6 +437,36 @@ public sealed class SimulateCommandTests : IDisposable
         Assert.Equal(ExitCodes.BadArguments, _cli.Run("simulate", "--correlation", "1", "--no-ledger").Exit);
         Assert.Equal(ExitCodes.BadArguments, _cli.Run("simulate", "--guard", "ladder:2", "--no-ledger").Exit);
     }
+
+    [Fact]
+    public void Simulate_per_example_reports_chained_binomial_and_every_method_against_the_oracle()
+    {
+        string[] args = ["simulate", "--per-example", "--holdout-size", "2000", "--looks", "100", "--true-error", "0.2", "--correlation", "0.99", "--repetitions", "300", "--seed", "4", "--format", "json", "--no-ledger"];
+        var result = _cli.Run(args);
+        Assert.Equal(ExitCodes.Success, result.Exit);
+        var root = System.Text.Json.JsonDocument.Parse(result.Out).RootElement;
+        Assert.True(root.GetProperty("options").GetProperty("perExample").GetBoolean());
+        var oracle = root.GetProperty("oracleMargin").GetDouble();
+        Assert.True(oracle > 0);
+        var methods = root.GetProperty("methods").EnumerateArray().ToDictionary(m => m.GetProperty("method").GetString()!);
+        Assert.Equal(["binomial-union", "kl-union", "hoeffding-union", "chained-binomial", "smallest-listed"], methods.Keys);
+        foreach (var m in methods.Values)
+        {
+            Assert.Equal(m.GetProperty("meanMargin").GetDouble() / oracle, m.GetProperty("marginToOracle").GetDouble(), 12);
+        }
+
+        Assert.True(methods["smallest-listed"].GetProperty("selection").GetBoolean());
+        Assert.False(methods["chained-binomial"].GetProperty("selection").GetBoolean());
+        // At ρ = 0.99 the looks share nearly every mistake: chained-binomial is the tighter guarantee.
+        Assert.True(methods["chained-binomial"].GetProperty("marginToOracle").GetDouble() < methods["binomial-union"].GetProperty("marginToOracle").GetDouble());
+        Assert.Equal(result.Out, _cli.Run(args).Out);
+        var table = _cli.Run("simulate", "--per-example", "--looks", "20", "--repetitions", "50", "--no-ledger");
+        Assert.Contains("oracle margin", table.Out);
+        Assert.Contains("/ oracle", table.Out);
+        var refused = _cli.Run("simulate", "--per-example", "--strategy", "refine", "--no-ledger");
+        Assert.Equal(ExitCodes.BadArguments, refused.Exit);
+        Assert.Equal("accountant: --per-example simulates non-adaptive searches only; use it with --strategy fixed.", refused.Err.Trim());
+    }
 }
 
 public sealed class SearchCommandTests : IDisposable

@@ -72,6 +72,21 @@ public static class HtmlReport
         }
 
         b.AppendLine("</tbody></table>");
+        if (s.Split is { } split && s.Primary is { } tightest)
+        {
+            // The tightest margin as two bars: what one look's sampling costs, and what the comparisons add.
+            var whole = Math.Max(tightest.Margin, 1e-12);
+            var samplingShare = Math.Clamp(split.Sampling / whole, 0, 1) * 100;
+            b.AppendLine("<h2>What the margin cost</h2>");
+            b.AppendLine($"<div role='img' aria-label='margin split' style='display:flex;height:1.25rem;border:1px solid var(--rule);max-width:40rem'><div style='width:{samplingShare.ToString("0.#", System.Globalization.CultureInfo.InvariantCulture)}%;background:var(--accent)'></div><div style='flex:1;background:var(--band)'></div></div>");
+            b.AppendLine($"<p>Margin {Text.N(tightest.Margin)} = <span data-field='marginSplit.sampling'>{Text.N(split.Sampling)}</span> for sampling alone ({H(split.SamplingMethod)} with one look, dark) + <span data-field='marginSplit.comparisons'>{Text.N(split.Comparisons)}</span> for the comparisons (light).</p>");
+        }
+
+        foreach (var sentence in StatementWriter.MarginSentences(s).Skip(s.Split is null ? 0 : 1))
+        {
+            b.AppendLine($"<p class=\"meta\">{H(sentence)}</p>");
+        }
+
         var budget = s.Budget;
         b.AppendLine($"<p>Budget at tolerance <span data-field=\"budget.tolerance\">{Text.N(budget.Tolerance, 3)}</span>: <span data-field=\"budget.looksLeft\">{Text.Count(budget.LooksLeft)}</span> look(s) left of {Text.Count(budget.MaxLooks)} ({H(budget.Method)}).</p>");
 

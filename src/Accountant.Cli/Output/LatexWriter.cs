@@ -90,6 +90,16 @@ public static class LatexWriter
             text.Append($"Adaptive looks were accounted for by a union bound over every look the released values could have led to, $\\ln M_{{\\mathrm{{eff}}}} = {Text.N(s.LogEffectiveLooks, 2)}$. ");
         }
 
+        if (s.Split is { } split && s.Primary is { } tightest)
+        {
+            text.Append($"Of the margin {Text.N(tightest.Margin)}, {Text.N(split.Sampling)} is what sampling {Text.Count(h.Size)} examples costs for a single configuration ({Escape(split.SamplingMethod)} with one look) and {Text.N(split.Comparisons)} what the comparisons cost. ");
+        }
+
+        if (s.EffectiveComparisons is { } effective)
+        {
+            text.Append($"Because the configurations share most of their mistakes, the correlation-aware bound is as tight as a union bound over {Text.N(effective, 1)} of the {Text.Count(s.Looks)} looks would be. ");
+        }
+
         text.Append("The bound assumes the validation examples are independent draws from the population of interest and that every look at them was recorded; it does not address distribution shift and does not replace an untouched test set.");
         return text.ToString();
     }

@@ -69,6 +69,7 @@ public static class StatementWriter
             var primary = s.Primary!;
             var direction = h.Metric.HigherIsBetter() ? "at least" : "at most";
             b.AppendLine($"  With {Text.Percent(s.Options.Confidence)} confidence the selected configuration's true {h.Metric.Name()} is {direction} {Text.N(primary.Bound)} ({primary.Method}).");
+            foreach (var sentence in MarginSentences(s)) b.AppendLine($"  {sentence}");
         }
 
         EstimatesTable(b, s);
@@ -90,6 +91,29 @@ public static class StatementWriter
         b.AppendLine("Cautions");
         foreach (var c in s.Cautions) b.AppendLine($"  - {c}");
         return b.ToString();
+    }
+
+    /// <summary>What the tightest margin is made of, the effective number of comparisons, the anchors, and why the
+    /// correlation-aware guarantee is missing when it is: the same sentences in every format.</summary>
+    public static IEnumerable<string> MarginSentences(Statement s)
+    {
+        if (s.Split is { } split && s.Primary is { } primary)
+        {
+            yield return $"Margin {Text.N(primary.Margin)} = {Text.N(split.Sampling)} for sampling {Text.Count(s.Holdout.Size)} examples (one look: {split.SamplingMethod} with M = 1) + {Text.N(split.Comparisons)} for comparing the looks ({primary.Method}).";
+        }
+
+        if (s.EffectiveComparisons is { } effective)
+        {
+            yield return $"Effective comparisons: {Text.N(effective, 1)} of {Text.Count(s.Looks)} looks: the looks' shared mistakes make {ChainedBinomial.Name} as tight as a union bound over {Text.N(effective, 1)} looks would be.";
+        }
+
+        if (s.Anchors.Count > 0 && s.Bounds.FirstOrDefault(b => b.Method == ChainedBinomial.Name) is { } chained)
+        {
+            var anchors = string.Join("; ", s.Anchors.Select(a => $"{a.Name} ({Text.Count(a.Members)} looks, {Text.Count(a.Errors)} errors, {Text.Count(a.OnlyLook)} only the selected look gets wrong, {Text.Count(a.OnlyAnchor)} only the anchor)"));
+            yield return $"{ChainedBinomial.Name} anchors (majority votes of the looks' recorded losses): {anchors}.";
+        }
+
+        if (s.CorrelationNote is { Length: > 0 } note) yield return note;
     }
 
     private static string EstimateKind(EstimateLine line) => line.Asymptotic ? "estimate, asymptotic" : "estimate";
@@ -184,6 +208,8 @@ public static class StatementWriter
             }
 
             b.AppendLine();
+            foreach (var sentence in MarginSentences(s)) b.AppendLine($"- {sentence}");
+            if (s.Split is not null || s.CorrelationNote is not null) b.AppendLine();
         }
 
         if (s.Options.Estimates)
@@ -317,6 +343,7 @@ public static class StatementWriter
         }
 
         WriteBounds(w, s);
+        WriteMargin(w, s);
         WriteEstimates(w, s);
         WriteWinner(w, s);
         w.WriteStartObject("budget");
@@ -332,6 +359,40 @@ public static class StatementWriter
         foreach (var caution in s.Cautions) w.WriteStringValue(caution);
         w.WriteEndArray();
         w.WriteEndObject();
+    }
+
+    /// <summary>The margin split, the effective comparisons, the anchors and the correlation note.</summary>
+    public static void WriteMargin(Utf8JsonWriter w, Statement s)
+    {
+        if (s.Split is { } split)
+        {
+            w.WriteStartObject("marginSplit");
+            w.WriteNumber("sampling", split.Sampling);
+            w.WriteString("samplingMethod", split.SamplingMethod);
+            w.WriteNumber("comparisons", split.Comparisons);
+            w.WriteEndObject();
+        }
+        else
+        {
+            w.WriteNull("marginSplit");
+        }
+
+        if (s.EffectiveComparisons is { } effective) w.WriteNumber("effectiveComparisons", effective); else w.WriteNull("effectiveComparisons");
+        w.WriteStartArray("anchors");
+        foreach (var a in s.Anchors)
+        {
+            w.WriteStartObject();
+            w.WriteString("name", a.Name);
+            w.WriteNumber("looks", a.Members);
+            w.WriteNumber("errors", a.Errors);
+            w.WriteNumber("weight", a.Weight);
+            w.WriteNumber("onlySelected", a.OnlyLook);
+            w.WriteNumber("onlyAnchor", a.OnlyAnchor);
+            w.WriteEndObject();
+        }
+
+        w.WriteEndArray();
+        w.WriteString("correlationNote", s.CorrelationNote is { Length: > 0 } note ? note : null);
     }
 
     private static void WriteEstimates(Utf8JsonWriter w, Statement s)

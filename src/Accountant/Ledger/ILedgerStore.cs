@@ -64,6 +64,13 @@ public interface ILedgerStore : IDisposable
             adaptive == 0 ? null : looks.Select(Statements.StatementBuilder.Accounted).ToList());
     }
 
+    /// <summary>Every look's configuration and per-example losses in number order, streamed (no other call to this store may be
+    /// made until the enumeration ends). This default reads them one look at a time.</summary>
+    IEnumerable<LossRow> LossRows(Holdout holdout)
+    {
+        foreach (var look in Looks(holdout)) yield return new LossRow(look.Number, look.Configuration, look.LossEncoding, look.HasLosses ? LossBytes(holdout, look.Number) : null);
+    }
+
     /// <summary>The stored per-example losses of one look, or null when only its score is known.</summary>
     byte[]? LossBytes(Holdout holdout, int lookNumber);
 

@@ -292,6 +292,17 @@ internal static class LedgerReads
         return voids;
     }
 
+    /// <summary>Every look's number, configuration, loss encoding and losses, in number order, from one open reader.</summary>
+    public static IEnumerable<LossRow> LossRows(DbConnection connection, Holdout holdout)
+    {
+        using var command = Command(connection, "SELECT number, configuration, loss_encoding, losses FROM looks WHERE holdout_id = @id ORDER BY number;", ("@id", holdout.Key));
+        using var reader = command.ExecuteReader();
+        while (reader.Read())
+        {
+            yield return new LossRow(reader.GetInt32(0), reader.GetString(1), (LossEncoding)reader.GetInt32(2), reader.IsDBNull(3) ? null : (byte[])reader.GetValue(3));
+        }
+    }
+
     public static byte[]? LossBytes(DbConnection connection, Holdout holdout, int lookNumber)
     {
         using var command = Command(connection, "SELECT losses FROM looks WHERE holdout_id = @id AND number = @number;", ("@id", holdout.Key), ("@number", lookNumber));

@@ -95,6 +95,9 @@ public sealed record Look(
     public bool HasLosses => LossEncoding != LossEncoding.None;
 }
 
+/// <summary>One look's configuration and stored per-example losses (null for a score-only look), as a statement streams them.</summary>
+public sealed record LossRow(int Number, string Configuration, LossEncoding Encoding, byte[]? Losses);
+
 /// <summary>An opening of a sealed test set: which look's configuration was scored on it, and how it did.</summary>
 public sealed record TestOpening(long Sequence, int LookNumber, int TestSize, string TestFingerprint, double TestScore, DateTimeOffset RecordedAt);
 

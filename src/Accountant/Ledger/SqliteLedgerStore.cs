@@ -594,6 +594,12 @@ public sealed partial class SqliteLedgerStore : ILedgerStore
 
     public byte[]? LossBytes(Holdout holdout, int lookNumber) => Guarded(() => LedgerReads.LossBytes(_connection, holdout, lookNumber));
 
+    public IEnumerable<LossRow> LossRows(Holdout holdout)
+    {
+        using var rows = Guarded(() => LedgerReads.LossRows(_connection, holdout).GetEnumerator());
+        while (Guarded(rows.MoveNext)) yield return rows.Current;
+    }
+
     public string? ChainHead() => Guarded(() => LedgerReads.ChainHead(_connection));
 
     public ChainReport Verify(string? expectedHead = null) => Guarded(() => new ChainVerifier(Rows()).Run(expectedHead));

@@ -38,6 +38,12 @@ public sealed record SimulationOptions
     public int Repetitions { get; init; } = 1000;
     public int Seed { get; init; } = 1;
 
+    /// <summary>
+    /// Simulate every example's loss, not only each look's error count, so that methods that read per-example losses
+    /// (chained-binomial) can be computed. For the fixed strategy only; slower (the losses of every look are drawn).
+    /// </summary>
+    public bool PerExample { get; init; }
+
     public void Validate()
     {
         if (HoldoutSize < 10 || HoldoutSize > 10_000_000) throw AccountantException.BadArguments("--holdout-size must be between 10 and 10,000,000.");
@@ -47,6 +53,8 @@ public sealed record SimulationOptions
         if (!(Confidence > 0 && Confidence < 1)) throw AccountantException.BadArguments("--confidence must lie strictly between 0 and 1, such as 0.95.");
         if (Repetitions < 1 || Repetitions > 10_000_000) throw AccountantException.BadArguments("--repetitions must be between 1 and 10,000,000.");
         if (Strategy == AnalystStrategy.Attack && (long)HoldoutSize * Looks > 200_000_000) throw AccountantException.BadArguments("the attack is simulated example by example; keep --holdout-size × --looks within 200,000,000.");
+        if (PerExample && Strategy != AnalystStrategy.Fixed) throw AccountantException.BadArguments("--per-example simulates non-adaptive searches only; use it with --strategy fixed.");
+        if (PerExample && (long)HoldoutSize * Looks > 1_000_000_000) throw AccountantException.BadArguments("--per-example draws every look's losses; keep --holdout-size × --looks within 1,000,000,000.");
     }
 }
 
@@ -55,15 +63,27 @@ public sealed record SimulationOptions
 /// <param name="CoverageStdErr">Its binomial standard error, sqrt(c(1 − c)/R).</param>
 /// <param name="MeanMargin">The mean of bound − observed best.</param>
 /// <param name="ValidHere">False for the plain union bounds when the analyst was adaptive: they are shown to see them fail.</param>
-public sealed record MethodCoverage(string Method, double Coverage, double CoverageStdErr, double MeanMargin, bool ValidHere);
+public sealed record MethodCoverage(string Method, double Coverage, double CoverageStdErr, double MeanMargin, bool ValidHere)
+{
+    /// <summary>The mean margin over the oracle margin (<see cref="SimulationResult.OracleMargin"/>): 1 is as tight as the
+    /// truth allows at this confidence; NaN when the oracle margin is not positive.</summary>
+    public double MarginToOracle { get; init; } = double.NaN;
+
+    /// <summary>True for the row that takes, in each search, the smallest of the guarantees listed: not a method of its own
+    /// but what a reader of the statement's tightest line gets, shown to measure what choosing after seeing costs.</summary>
+    public bool Selection { get; init; }
+}
 
 /// <summary>What the simulation measured.</summary>
 /// <param name="MeanObserved">The mean over repetitions of the selected look's validation error (the raw best).</param>
 /// <param name="MeanTrue">The mean true error of the selected configuration.</param>
 /// <param name="RawCoverage">How often the raw best was at least the true error.</param>
 /// <param name="LogEffectiveLooks">ln M_eff the adaptive accounting used.</param>
+/// <param name="OracleMargin">The oracle margin: the confidence-level quantile (e.g. the 95th percentile) of true minus observed
+/// error of the selected configuration over the repetitions, the smallest margin any bound could have and still cover that
+/// often in this scenario (a bound that knew the scenario).</param>
 public sealed record SimulationResult(SimulationOptions Options, double MeanObserved, double MeanTrue, double RawCoverage, double RawCoverageStdErr,
-    double LogEffectiveLooks, IReadOnlyList<MethodCoverage> Methods)
+    double LogEffectiveLooks, IReadOnlyList<MethodCoverage> Methods, double OracleMargin = double.NaN)
 {
     public double Optimism => MeanTrue - MeanObserved;
 }
@@ -73,13 +93,16 @@ public sealed record SimulationResult(SimulationOptions Options, double MeanObse
 /// best look as the accountant does (the lowest validation error), and records how often each method's bound covers the
 /// selected configuration's true error.
 /// <para>
-/// Correlation ρ: a shared vector S of n mistakes (each example with probability p_min) and, for each configuration, every
-/// example copies S with probability ρ and otherwise errs independently with probability q, chosen so that the true error is
-/// ρ·p_min + (1 − ρ)·q. Error counts are then three binomial draws per look (copied mistakes, copied non-mistakes, the rest),
-/// exact and O(1); only the attack is simulated example by example, with bitsets.
+/// Correlation ρ: each example is shared with probability ρ, the same examples for every configuration; a shared example is
+/// a mistake of every configuration with probability p_min (the same mistake for all) and of none otherwise; on the other
+/// examples each configuration errs on its own with probability q, chosen so that its true error is ρ·p_min + (1 − ρ)·q = p.
+/// So ρ is the share of examples on which all configurations err alike, and two configurations of equal true error have
+/// errors correlated by about ρ. Error counts are then exact binomial draws (the shared examples and shared mistakes once
+/// per search, each configuration's own mistakes once per look), O(1) each; the attack, and searches run with
+/// <see cref="SimulationOptions.PerExample"/>, are simulated example by example, with bitsets.
 /// </para>
 /// </summary>
-public static class SearchSimulator
+public static partial class SearchSimulator
 {
     public static readonly string[] Methods = [AdaptiveMethod, BinomialUnion.Name, KlUnion.Name, HoeffdingUnion.Name];
 
@@ -88,6 +111,7 @@ public static class SearchSimulator
     public static SimulationResult Run(SimulationOptions options, IProgress<int>? progress = null, CancellationToken cancel = default)
     {
         options.Validate();
+        if (options.PerExample) return RunPerExample(options, progress, cancel);
         var n = options.HoldoutSize;
         var k = options.Looks;
         var delta = 1 - options.Confidence;
@@ -133,17 +157,41 @@ public static class SearchSimulator
             progress?.Report(Interlocked.Add(ref done, Math.Min(chunk, options.Repetitions - c * chunk)));
         });
 
-        var totals = new Totals(caches.Length);
+        return Summarize(options, partial, Methods, i => i == 0 || !adaptiveAnalyst, logEffective);
+    }
+
+    /// <summary>Adds up the chunks in order, and finds the oracle margin from every repetition's gap.</summary>
+    private static SimulationResult Summarize(SimulationOptions options, Totals[] partial, IReadOnlyList<string> names, Func<int, bool> validHere,
+        double logEffective, int selectionRow = -1)
+    {
+        var totals = new Totals(names.Count);
         foreach (var local in partial) totals.Merge(local);
         var reps = (double)options.Repetitions;
         double StdErr(double c) => Math.Sqrt(c * (1 - c) / reps);
-        var methods = Methods.Select((name, i) =>
+        var oracle = Quantile(totals.Gaps, options.Confidence);
+        var methods = names.Select((name, i) =>
         {
             var coverage = totals.Covered[i] / reps;
-            return new MethodCoverage(name, coverage, StdErr(coverage), totals.Margin[i] / reps, i == 0 || !adaptiveAnalyst);
+            var margin = totals.Margin[i] / reps;
+            return new MethodCoverage(name, coverage, StdErr(coverage), margin, validHere(i))
+            {
+                MarginToOracle = oracle > 0 ? margin / oracle : double.NaN,
+                Selection = i == selectionRow,
+            };
         }).ToList();
         var raw = totals.RawCovered / reps;
-        return new SimulationResult(options, totals.Observed / reps, totals.True / reps, raw, StdErr(raw), logEffective, methods);
+        return new SimulationResult(options, totals.Observed / reps, totals.True / reps, raw, StdErr(raw), logEffective, methods, oracle);
+    }
+
+    /// <summary>The empirical q-quantile, the ⌈q·R⌉-th smallest of R values (the order statistic a bound covering q of the
+    /// repetitions must reach).</summary>
+    public static double Quantile(List<double> values, double q)
+    {
+        if (values.Count == 0) return double.NaN;
+        var sorted = values.ToArray();
+        Array.Sort(sorted);
+        var index = Math.Clamp((int)Math.Ceiling(q * sorted.Length) - 1, 0, sorted.Length - 1);
+        return sorted[index];
     }
 
     /// <summary>Which looks are adaptive, in order: the same in every repetition, so ln M_eff is computed once.</summary>
@@ -167,10 +215,14 @@ public static class SearchSimulator
         public readonly long[] Covered = new long[methods];
         public readonly double[] Margin = new double[methods];
 
+        /// <summary>Every repetition's true minus observed error of the selected configuration, in repetition order.</summary>
+        public readonly List<double> Gaps = [];
+
         public void Add(double observed, double truth, double[] bounds)
         {
             Observed += observed;
             True += truth;
+            Gaps.Add(truth - observed);
             if (observed >= truth) RawCovered++;
             for (var i = 0; i < bounds.Length; i++)
             {
@@ -184,6 +236,7 @@ public static class SearchSimulator
             Observed += other.Observed;
             True += other.True;
             RawCovered += other.RawCovered;
+            Gaps.AddRange(other.Gaps);
             for (var i = 0; i < Covered.Length; i++)
             {
                 Covered[i] += other.Covered[i];
@@ -212,21 +265,27 @@ public static class SearchSimulator
         }
     }
 
-    /// <summary>The shared part of the correlation model for one repetition.</summary>
-    private readonly record struct Shared(int Mistakes, double Rho, double Floor);
+    /// <summary>The shared part of the correlation model for one repetition: how many examples are shared, and how many of
+    /// those are shared mistakes.</summary>
+    private readonly record struct Shared(int Examples, int Mistakes, double Rho, double Floor);
 
-    private static Shared DrawShared(SimulationOptions o, FastRandom random) =>
-        new(o.Correlation > 0 ? BinomialDraw.Sample(random, o.HoldoutSize, o.TrueErrorLow) : 0, o.Correlation, o.TrueErrorLow);
+    private static Shared DrawShared(SimulationOptions o, FastRandom random)
+    {
+        if (o.Correlation <= 0) return new Shared(0, 0, 0, o.TrueErrorLow);
+        var examples = BinomialDraw.Sample(random, o.HoldoutSize, o.Correlation);
+        return new Shared(examples, BinomialDraw.Sample(random, examples, o.TrueErrorLow), o.Correlation, o.TrueErrorLow);
+    }
 
-    /// <summary>Draws one configuration's error count with true error <paramref name="p"/>; returns the count.</summary>
+    /// <summary>Draws one configuration's error count with true error <paramref name="p"/>: the shared mistakes, and its own
+    /// mistakes with probability q on the other examples, q = (p − ρ·p_min)/(1 − ρ), so that its true error is p.</summary>
     private static int Count(int n, double p, Shared shared, FastRandom random)
     {
         if (shared.Rho <= 0) return BinomialDraw.Sample(random, n, p);
-        var q = (p - shared.Rho * shared.Floor) / (1 - shared.Rho);
-        var copiedMistakes = BinomialDraw.Sample(random, shared.Mistakes, shared.Rho);
-        var copiedRest = BinomialDraw.Sample(random, n - shared.Mistakes, shared.Rho);
-        return copiedMistakes + BinomialDraw.Sample(random, n - copiedMistakes - copiedRest, q);
+        return shared.Mistakes + BinomialDraw.Sample(random, n - shared.Examples, OwnError(p, shared.Rho, shared.Floor));
     }
+
+    /// <summary>A look's error rate on the examples it does not share: q = (p − ρ·p_min)/(1 − ρ).</summary>
+    internal static double OwnError(double p, double rho, double floor) => Math.Clamp((p - rho * floor) / (1 - rho), 0.0, 1.0);
 
     private static (int Count, double Truth) Fixed(SimulationOptions o, FastRandom random, ValueSpace space)
     {

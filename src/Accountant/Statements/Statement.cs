@@ -93,4 +93,26 @@ public sealed record Statement(
 
     /// <summary>The effective number of looks the bounds are corrected for, e^(ln M_eff); equals <see cref="Looks"/> without adaptive looks.</summary>
     public double EffectiveLooks => Math.Exp(LogEffectiveLooks);
+
+    /// <summary>What the tightest guarantee's margin is made of: what sampling alone costs, and what the comparisons add.</summary>
+    public MarginSplit? Split { get; init; }
+
+    /// <summary>
+    /// When the tightest guarantee is the correlation-aware one: the number of looks at which the plain union bound would give
+    /// the same bound (fewer than <see cref="Looks"/> when the looks' mistakes are correlated); null otherwise.
+    /// </summary>
+    public double? EffectiveComparisons { get; init; }
+
+    /// <summary>The anchors of the correlation-aware guarantee, when it was computed.</summary>
+    public IReadOnlyList<ChainedAnchor> Anchors { get; init; } = [];
+
+    /// <summary>Why the correlation-aware guarantee is not in the statement although the metric allows it; null otherwise.</summary>
+    public string? CorrelationNote { get; init; }
 }
+
+/// <summary>
+/// The tightest guarantee's margin split in two: <paramref name="Sampling"/>, the margin of the same method's family for a
+/// single look (what sampling n examples costs with no comparison at all: <paramref name="SamplingMethod"/> with M = 1),
+/// and <paramref name="Comparisons"/>, the rest, what comparing the looks costs.
+/// </summary>
+public sealed record MarginSplit(double Sampling, double Comparisons, string SamplingMethod);

@@ -70,7 +70,37 @@ public static class StatementBuilder
             warnings.Add(new("selected-after-unseal", $"the selected look #{best.Number} was recorded after the test set was opened for look #{openings[0].LookNumber}; a configuration chosen after seeing the test score cannot be judged by that test set."));
         }
 
-        return new Statement(holdout, options, m, adaptive, voided.Count, scoreOnly, logLooks, unguarded, best, bounds, budget, chainHead, warnings, Cautions.All, openings);
+        var statement = new Statement(holdout, options, m, adaptive, voided.Count, scoreOnly, logLooks, unguarded, best, bounds, budget, chainHead, warnings, Cautions.All, openings)
+        {
+            CorrelationNote = inputs.ChainedNote,
+            Anchors = inputs.Chained?.Anchors ?? [],
+        };
+        return best is null || bounds.Count == 0 ? statement : statement with
+        {
+            Split = Split(holdout, best, bounds[0], options, inputs),
+            EffectiveComparisons = bounds[0].Method == ChainedBinomial.Name ? Effective(holdout, best, bounds[0], inputs.Chained!.Looks, options) : null,
+        };
+    }
+
+    /// <summary>
+    /// The tightest margin against a single look's: the same family's bound with M = 1 on the selected look's score (the exact
+    /// binomial for 0/1 losses, Hoeffding for bounded losses, the AUC bound for AUC), and the rest.
+    /// </summary>
+    private static MarginSplit Split(Holdout holdout, Look best, BoundLine tightest, StatementOptions options, StatementInputs inputs)
+    {
+        var one = BoundsFor(holdout, best, 0.0, adaptive: false, options, inputs with { Chained = null });
+        var sampling = holdout.Metric.IsZeroOne() ? one.First(l => l.Method == BinomialUnion.Name)
+            : holdout.Metric == Metric.Auc ? one[0]
+            : one.First(l => l.Method == HoeffdingUnion.Name);
+        return new MarginSplit(sampling.Margin, Math.Max(0.0, tightest.Margin - sampling.Margin), sampling.Method);
+    }
+
+    private static double? Effective(Holdout holdout, Look best, BoundLine chained, int looks, StatementOptions options)
+    {
+        var accuracy = holdout.Metric == Metric.Accuracy;
+        var errors = ErrorCount(accuracy ? 1.0 - best.Score : best.Score, holdout.Size, roundUp: true);
+        var upperOnError = accuracy ? 1.0 - chained.Lower : chained.Upper;
+        return ChainedBinomial.EffectiveComparisons(errors, holdout.Size, looks, upperOnError, options.Delta, options.Sided);
     }
 
     private static ValueSpace DefaultSpace(Holdout holdout, long? positives) => holdout.Metric switch
@@ -147,6 +177,12 @@ public static class StatementBuilder
                 var klLow = sided == Sidedness.TwoSided ? KlUnion.Bound(kDown / (double)n, n, logLooks, delta, sided).Lower : 0.0;
                 lines.Add(Line(KlUnion.Name, accuracy, observed, new Interval(klLow, kl.Upper), KlReference));
                 lines.Add(Line(HoeffdingUnion.Name, accuracy, observed, HoeffdingUnion.BoundLog(error, n, logLooks, delta, LossRange.Unit, sided), HoeffdingReference));
+                if (inputs.Chained is { } chained)
+                {
+                    var result = ChainedBinomial.Bound(n, chained.Looks, chained.Counts, chained.Increments, delta, sided);
+                    lines.Add(Line(ChainedBinomial.Name, accuracy, observed, result.Interval, CorrelationAware.Reference));
+                }
+
                 break;
             }
 

@@ -11,4 +11,10 @@ namespace Accountant.Statements;
 public sealed record StatementInputs(ValueSpace? Space = null, long? Positives = null, Func<Look, byte[]?>? LossesOf = null, IReadOnlyList<TestOpening>? Openings = null)
 {
     public static StatementInputs None { get; } = new();
+
+    /// <summary>The anchors of the correlation-aware guarantee, when it applies (<see cref="CorrelationAware"/>).</summary>
+    public ChainedInputs? Chained { get; init; }
+
+    /// <summary>Why the correlation-aware guarantee is not in the statement, when it could have been; null otherwise.</summary>
+    public string? ChainedNote { get; init; }
 }

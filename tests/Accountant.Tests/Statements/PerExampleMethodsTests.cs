@@ -33,13 +33,15 @@ public class PerExampleMethodsTests
 
         var store = new CountingStore(SqliteLedgerStore.Open(temp.Path));
         using var counted = new Bookkeeper(store);
+        // A plain statement reads each look's losses once, for the correlation-aware guarantee (every look has them).
         var plain = counted.Statement("v");
-        Assert.Equal(0, store.LossReads);
+        Assert.Equal(5, store.LossReads);
+        Assert.Contains(plain.Bounds, b => b.Method == ChainedBinomial.Name);
         Assert.Empty(plain.Estimates);
         Assert.Null(plain.Winner);
 
         var full = counted.Statement("v", new StatementOptions { Estimates = true, Winner = true, Resamples = 200, Seed = 3 });
-        Assert.Equal(5, store.LossReads);
+        Assert.Equal(15, store.LossReads); // 5 more for the anchors, and 5 for the bootstrap and the winner test
         Assert.Equal(2, full.Estimates.Count);
         Assert.All(full.Estimates, e => Assert.Equal(5, e.Looks));
         // Predictions wrong on a prefix of the examples: look 1 (20 errors) is nested in every other look, so its
@@ -50,6 +52,15 @@ public class PerExampleMethodsTests
         Assert.Equal(3, full.Winner.RunnerUp!.LookB);
         Assert.Equal(0, full.Winner.RunnerUp.OnlyA);
         Assert.Equal(2, full.Winner.RunnerUp.OnlyB);
+
+        // One look with only a score: the correlation-aware guarantee cannot be computed, so nothing is read for it, and the
+        // statement says why it fell back to the union bound.
+        using (var book = temp.Open()) book.Record("v", """{"k":9}""", 0.5);
+        var before = store.LossReads;
+        var fallback = counted.Statement("v");
+        Assert.Equal(before, store.LossReads);
+        Assert.DoesNotContain(fallback.Bounds, b => b.Method == ChainedBinomial.Name);
+        Assert.Contains("1 of 6 looks carry only a score", fallback.CorrelationNote);
     }
 
     [Fact]
