@@ -18,15 +18,15 @@ public sealed class MajorityAnchors
 {
     private readonly int _n;
     private readonly int _words;
-    private readonly Counter _all;
-    private readonly Dictionary<string, Counter> _groups = new(StringComparer.Ordinal);
+    private readonly BitCounter _all;
+    private readonly Dictionary<string, BitCounter> _groups = new(StringComparer.Ordinal);
 
     public MajorityAnchors(int n)
     {
         ArgumentOutOfRangeException.ThrowIfLessThan(n, 1);
         _n = n;
         _words = (n + 63) / 64;
-        _all = new Counter(_words);
+        _all = new BitCounter(_words);
     }
 
     /// <summary>How many looks were added.</summary>
@@ -42,7 +42,7 @@ public sealed class MajorityAnchors
         if (losses.Length != _words) throw new ArgumentException($"{_words} words expected", nameof(losses));
         _all.Add(losses);
         if (group is null) return;
-        if (!_groups.TryGetValue(group, out var counter)) _groups[group] = counter = new Counter(_words);
+        if (!_groups.TryGetValue(group, out var counter)) _groups[group] = counter = new BitCounter(_words);
         counter.Add(losses);
     }
 
@@ -122,61 +122,5 @@ public sealed class MajorityAnchors
         long count = 0;
         foreach (var w in bits) count += BitOperations.PopCount(w);
         return count;
-    }
-
-    /// <summary>A bit-sliced counter per example: plane p holds bit p of each example's count.</summary>
-    private sealed class Counter(int words)
-    {
-        private readonly List<ulong[]> _planes = [];
-        private readonly ulong[] _carry = new ulong[words];
-
-        public int Members { get; private set; }
-
-        public void Add(ReadOnlySpan<ulong> bits)
-        {
-            Members++;
-            var carry = _carry;
-            bits.CopyTo(carry);
-            for (var p = 0; ; p++)
-            {
-                if (p == _planes.Count) _planes.Add(new ulong[words]);
-                var plane = _planes[p];
-                var any = 0UL;
-                for (var w = 0; w < words; w++)
-                {
-                    var c = plane[w] & carry[w];
-                    plane[w] ^= carry[w];
-                    carry[w] = c;
-                    any |= c;
-                }
-
-                if (any == 0) return;
-            }
-        }
-
-        /// <summary>The examples whose count exceeds half the members: count &gt; ⌊members/2⌋.</summary>
-        public ulong[] Majority(int n)
-        {
-            var threshold = (ulong)(Members / 2);
-            var result = new ulong[words];
-            for (var w = 0; w < words; w++)
-            {
-                // Compare each example's count with the constant, from the most significant plane down.
-                ulong greater = 0, equal = ulong.MaxValue;
-                for (var p = Math.Max(_planes.Count, 64 - BitOperations.LeadingZeroCount(threshold)) - 1; p >= 0; p--)
-                {
-                    var bit = p < _planes.Count ? _planes[p][w] : 0UL;
-                    var t = p < 64 && ((threshold >> p) & 1) == 1 ? ulong.MaxValue : 0UL;
-                    greater |= equal & bit & ~t;
-                    equal &= ~(bit ^ t);
-                }
-
-                result[w] = greater;
-            }
-
-            var tail = n % 64;
-            if (tail != 0) result[^1] &= (1UL << tail) - 1;
-            return result;
-        }
     }
 }

@@ -134,7 +134,7 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
             return; // Another process made it meanwhile; open it as it is.
         }
 
-        Execute(Ddl);
+        Execute(Ddl + GuardStreamsDdl);
         foreach (var table in new[] { "entries", "holdouts", "looks", "voids", "openings", "guard_streams" }) AppendOnly(table);
 
         using (var meta = Command("INSERT INTO ledger_meta (key, value) VALUES ('application', @application), ('schema_version', @version);"))
@@ -163,19 +163,7 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
         var current = int.Parse((string)Scalar("SELECT value FROM ledger_meta WHERE key = 'schema_version';")!, CultureInfo.InvariantCulture);
         if (current == from && current < 4)
         {
-            Execute("""
-                ALTER TABLE looks ADD COLUMN stream text, ADD COLUMN stream_index integer, ADD COLUMN stream_answers integer;
-                CREATE TABLE guard_streams (
-                    seq         bigint PRIMARY KEY,
-                    holdout_id  bigint NOT NULL,
-                    name        text NOT NULL,
-                    guard       text NOT NULL,
-                    seed        bigint,
-                    created_at  text NOT NULL,
-                    UNIQUE (holdout_id, name)
-                );
-                CREATE INDEX looks_by_stream ON looks (holdout_id, stream, number) WHERE stream IS NOT NULL;
-                """);
+            Execute("ALTER TABLE looks ADD COLUMN stream text, ADD COLUMN stream_index integer, ADD COLUMN stream_answers integer;" + GuardStreamsDdl);
             AppendOnly("guard_streams");
         }
 
@@ -188,6 +176,20 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
 
         transaction.Commit();
     }
+
+    /// <summary>Schema 4's guard streams (see <see cref="SqliteLedgerStore.V4Streams"/>), for new ledgers and upgrades alike.</summary>
+    private const string GuardStreamsDdl = """
+        CREATE TABLE guard_streams (
+            seq         bigint PRIMARY KEY,
+            holdout_id  bigint NOT NULL,
+            name        text NOT NULL,
+            guard       text NOT NULL,
+            seed        bigint,
+            created_at  text NOT NULL,
+            UNIQUE (holdout_id, name)
+        );
+        CREATE INDEX looks_by_stream ON looks (holdout_id, stream, number) WHERE stream IS NOT NULL;
+        """;
 
     // The columns and their meaning are those of the SQLite ledger (see SqliteLedgerStore), so that rows move between the
     // two unchanged. Losses are stored without compression: bitsets of errors do not compress and the attempt costs time.
@@ -253,16 +255,6 @@ public sealed partial class PostgresLedgerStore : ILedgerStore
             recorded_at      text NOT NULL
         );
         CREATE INDEX looks_by_score ON looks (holdout_id, score, number, adaptive, loss_encoding);
-        CREATE TABLE guard_streams (
-            seq         bigint PRIMARY KEY,
-            holdout_id  bigint NOT NULL,
-            name        text NOT NULL,
-            guard       text NOT NULL,
-            seed        bigint,
-            created_at  text NOT NULL,
-            UNIQUE (holdout_id, name)
-        );
-        CREATE INDEX looks_by_stream ON looks (holdout_id, stream, number) WHERE stream IS NOT NULL;
         CREATE FUNCTION ledger_append_only() RETURNS trigger LANGUAGE plpgsql AS $body$
         BEGIN
             RAISE EXCEPTION 'the ledger is append-only';

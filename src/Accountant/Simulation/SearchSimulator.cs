@@ -373,7 +373,7 @@ public static partial class SearchSimulator
         var guard = new GuardRunner(o.Guard, space, random);
         var loss = new ulong[words];
         // Bit-sliced counters of how many kept classifiers err on each example.
-        var planes = new List<ulong[]>();
+        var counter = new Comparisons.BitCounter(words);
         var kept = 0;
         var best = int.MaxValue;
         var lastTold = double.PositiveInfinity;
@@ -393,7 +393,7 @@ public static partial class SearchSimulator
             if (released is { } told) lastTold = told;
             if (!good) continue;
             kept++;
-            AddToCounters(planes, loss, words);
+            counter.Add(loss);
         }
 
         // The final, adaptive look: the majority vote of the kept classifiers errs where more than half of them err. An even
@@ -401,11 +401,11 @@ public static partial class SearchSimulator
         // labels independent of the features (a coin flip), without looking at the labels.
         if (kept % 2 == 0)
         {
-            AddToCounters(planes, RandomVector(random, words, lastMask), words);
+            counter.Add(RandomVector(random, words, lastMask));
             kept++;
         }
 
-        var majority = Majority(planes, kept, words, lastMask);
+        var majority = counter.Majority(n);
         var final = majority.Sum(BitOperations.PopCount);
         guard.Release(final / (double)n, 0.5);
         return (Math.Min(best, final), 0.5);
@@ -416,49 +416,6 @@ public static partial class SearchSimulator
         var v = new ulong[words];
         for (var w = 0; w < words; w++) v[w] = random.NextUInt64() & (w == words - 1 ? lastMask : ulong.MaxValue);
         return v;
-    }
-
-    private static void AddToCounters(List<ulong[]> planes, ulong[] bits, int words)
-    {
-        var carry = (ulong[])bits.Clone();
-        for (var p = 0; ; p++)
-        {
-            if (p == planes.Count) planes.Add(new ulong[words]);
-            var plane = planes[p];
-            var any = 0UL;
-            for (var w = 0; w < words; w++)
-            {
-                var c = plane[w] & carry[w];
-                plane[w] ^= carry[w];
-                carry[w] = c;
-                any |= c;
-            }
-
-            if (any == 0) return;
-        }
-    }
-
-    /// <summary>Bits where the bit-sliced counter exceeds half of an odd number of votes.</summary>
-    private static ulong[] Majority(List<ulong[]> planes, int kept, int words, ulong lastMask)
-    {
-        var threshold = kept / 2; // err when count > threshold
-        var result = new ulong[words];
-        for (var w = 0; w < words; w++)
-        {
-            // Compare the counter (planes, LSB first) with the constant threshold, from the most significant bit down.
-            ulong greater = 0, equal = ulong.MaxValue;
-            for (var p = planes.Count - 1; p >= 0; p--)
-            {
-                var bit = planes[p][w];
-                var t = ((threshold >> p) & 1) == 1 ? ulong.MaxValue : 0UL;
-                greater |= equal & bit & ~t;
-                equal &= ~(bit ^ t);
-            }
-
-            result[w] = greater & (w == words - 1 ? lastMask : ulong.MaxValue);
-        }
-
-        return result;
     }
 
     /// <summary>A guard's stream within one simulated search.</summary>
