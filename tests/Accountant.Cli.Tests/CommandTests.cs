@@ -460,9 +460,17 @@ public sealed class SimulateCommandTests : IDisposable
         // At ρ = 0.99 the looks share nearly every mistake: chained-binomial is the tighter guarantee.
         Assert.True(methods["chained-binomial"].GetProperty("marginToOracle").GetDouble() < methods["binomial-union"].GetProperty("marginToOracle").GetDouble());
         Assert.Equal(result.Out, _cli.Run(args).Out);
-        var table = _cli.Run("simulate", "--per-example", "--looks", "20", "--repetitions", "50", "--no-ledger");
+        var png = Path.Combine(_cli.Folder, "simulation.png");
+        var table = _cli.Run("simulate", "--per-example", "--looks", "20", "--repetitions", "50", "--plot", png, "--no-ledger");
         Assert.Contains("oracle margin", table.Out);
         Assert.Contains("/ oracle", table.Out);
+        Assert.Equal(new byte[] { 0x89, 0x50, 0x4E, 0x47 }, File.ReadAllBytes(png)[..4]); // the PNG signature
+        var svg = Path.Combine(_cli.Folder, "simulation.svg");
+        Assert.Equal(ExitCodes.Success, _cli.Run("simulate", "--looks", "20", "--repetitions", "50", "--plot", svg, "--no-ledger").Exit);
+        Assert.Contains("<svg", File.ReadAllText(svg));
+        var badPlot = _cli.Run("simulate", "--looks", "20", "--repetitions", "50", "--plot", Path.Combine(_cli.Folder, "s.gif"), "--no-ledger");
+        Assert.Equal(ExitCodes.BadArguments, badPlot.Exit);
+        Assert.Equal("", badPlot.Out);
         var refused = _cli.Run("simulate", "--per-example", "--strategy", "refine", "--no-ledger");
         Assert.Equal(ExitCodes.BadArguments, refused.Exit);
         Assert.Equal("accountant: --per-example simulates non-adaptive searches only; use it with --strategy fixed.", refused.Err.Trim());

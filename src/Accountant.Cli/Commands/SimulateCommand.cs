@@ -21,9 +21,10 @@ internal sealed class SimulateCommand : Command
         var confidence = Common.Confidence();
         var repetitions = new Option<int>("--repetitions") { Description = "Simulated searches.", DefaultValueFactory = _ => 1000 };
         var seed = new Option<int>("--seed") { Description = "Seed; the result depends on it alone.", DefaultValueFactory = _ => 1 };
+        var plotPath = new Option<string?>("--plot") { Description = "Also draw each method's margin against the oracle's, with its coverage, to FILE.png or FILE.svg." };
         var perExample = new Option<bool>("--per-example") { Description = "Draw every example's loss (fixed strategy), so that chained-binomial, which reads per-example losses, is simulated too." };
         var format = Common.Format("table", "json");
-        foreach (var option in new Option[] { size, looks, trueError, correlation, strategy, guard, confidence, repetitions, seed, perExample, format }) Options.Add(option);
+        foreach (var option in new Option[] { size, looks, trueError, correlation, strategy, guard, confidence, repetitions, seed, perExample, plotPath, format }) Options.Add(option);
         SetAction(r => Common.Guard(env, () =>
         {
             var (low, high) = ParseTrueError(r.GetValue(trueError)!);
@@ -41,8 +42,14 @@ internal sealed class SimulateCommand : Command
                 Seed = r.GetValue(seed),
                 PerExample = r.GetValue(perExample),
             };
+            if (r.GetValue(plotPath) is { } plot) Accountant.Search.Plots.StatementPlot.CheckPath(plot);
             var result = SearchSimulator.Run(options, cancel: env.Cancel);
             env.Output.Write(r.GetValue(format) == "json" ? Json(result) : Table(result));
+            if (r.GetValue(plotPath) is { } file)
+            {
+                Accountant.Search.Plots.SimulationPlot.Write(result, file);
+                env.Error.WriteLine($"plot written to {file}");
+            }
             return ExitCodes.Success;
         }));
     }
