@@ -24,7 +24,7 @@ public sealed partial class Bookkeeper
         {
             if (input.Guard is not { } guard) return prepared;
             var known = examples;
-            return Release(holdout, prepared, guard, input, ref known, new Dictionary<string, OpenStream>(StringComparer.Ordinal));
+            return Release(holdout, prepared, guard, input, Space(holdout, ref known), new Dictionary<string, OpenStream>(StringComparer.Ordinal));
         }, nextStage);
     }
 }

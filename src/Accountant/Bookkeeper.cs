@@ -255,13 +255,14 @@ public sealed partial class Bookkeeper : IDisposable
         return Store.AppendLooks(holdout, () =>
         {
             var streams = new Dictionary<string, OpenStream>(StringComparer.Ordinal);
+            var space = Space(holdout, ref examples);
             var released = (NewLook[])prepared.Clone();
             for (var i = 0; i < inputs.Count; i++)
             {
                 if (inputs[i].Guard is not { } guard) continue;
                 try
                 {
-                    released[i] = Release(holdout, prepared[i], guard, inputs[i], ref examples, streams);
+                    released[i] = Release(holdout, prepared[i], guard, inputs[i], space, streams);
                 }
                 catch (AccountantException e)
                 {
@@ -331,7 +332,7 @@ public sealed partial class Bookkeeper : IDisposable
     /// stream's state from the ledger the first time the batch uses it; a stream used for the first time is declared with
     /// its guard and, for Thresholdout, a noise seed (<see cref="GuardSeed"/>, else a random one), in the same transaction.
     /// </summary>
-    private NewLook Release(Holdout holdout, NewLook look, GuardSpec guard, LookInput input, ref IReadOnlyList<HoldoutExample>? examples, Dictionary<string, OpenStream> streams)
+    private NewLook Release(Holdout holdout, NewLook look, GuardSpec guard, LookInput input, ValueSpace space, Dictionary<string, OpenStream> streams)
     {
         var name = input.Stream ?? guard.ToString();
         if (!streams.TryGetValue(name, out var stream))
@@ -351,7 +352,7 @@ public sealed partial class Bookkeeper : IDisposable
             CheckStreamGuard(holdout, name, stream.Stream.Guard, guard);
         }
 
-        var release = Guard.Apply(guard, stream.State, look.Score, Space(holdout, ref examples), holdout.Metric.HigherIsBetter(), input.TrainScore, stream.Noise);
+        var release = Guard.Apply(guard, stream.State, look.Score, space, holdout.Metric.HigherIsBetter(), input.TrainScore, stream.Noise);
         var index = stream.State.Releases;
         stream.State = stream.State.After(release);
         var opens = stream.Declared ? null : stream.Stream;

@@ -107,11 +107,9 @@ public static class StatementWriter
             yield return $"Effective comparisons: {Text.N(effective, 1)} of {Text.Count(s.Looks)} looks: the looks' shared mistakes make {ChainedBinomial.Name} as tight as a union bound over {Text.N(effective, 1)} looks would be.";
         }
 
-        if (s.Anchors.Count > 0 && s.Bounds.Any(b => b.Method == ChainedBinomial.Name))
+        if (s.AnchorUsed is { } used && s.Bounds.Any(b => b.Method == ChainedBinomial.Name))
         {
             // The anchor that gave the bound (the full list is in the JSON statement's anchors).
-            var inputs = new ChainedInputs(s.Anchors[0].Members, s.Anchors);
-            var used = s.Anchors[ChainedBinomial.Bound(s.Holdout.Size, inputs.Looks, inputs.Counts, inputs.Increments, s.Options.Delta, s.Options.Sided).UpperAnchor];
             var of = s.Anchors.Count == 1 ? "its only anchor" : $"the best of {Text.Count(s.Anchors.Count)} anchors";
             yield return $"{ChainedBinomial.Name} chains through the majority vote of {(used.Name == "all" ? "every look" : used.Name)} ({Text.Count(used.Members)} looks, {Text.Count(used.Errors)} errors; the selected look errs alone on {Text.Count(used.OnlyLook)} examples and is right alone on {Text.Count(used.OnlyAnchor)}), {of}.";
         }

@@ -1,6 +1,5 @@
 using Accountant.Simulation;
 using ScottPlot;
-using SkiaSharp;
 
 namespace Accountant.Search.Plots;
 
@@ -36,15 +35,6 @@ public static class SimulationPlot
         plot.Title($"{o.Strategy.ToString().ToLowerInvariant()}, {o.Looks:#,0} looks, {o.HoldoutSize:#,0} examples, correlation {o.Correlation:0.##}, {o.Repetitions:#,0} searches", size: 14);
         plot.XLabel($"mean margin / oracle margin {result.OracleMargin:0.0000} (dotted line: the oracle)", size: 13);
         plot.Axes.SetLimits(0, Math.Max(2.0, methods.Count == 0 ? 2.0 : methods.Max(m => m.MarginToOracle) * 1.6), -0.6, methods.Count - 0.4);
-        if (Path.GetExtension(path).Equals(".svg", StringComparison.OrdinalIgnoreCase))
-        {
-            using var stream = File.Create(path);
-            using var canvas = SKSvgCanvas.Create(new SKRect(0, 0, Width, Height), stream);
-            plot.Render(canvas, new PixelRect(0, Width, Height, 0));
-        }
-        else
-        {
-            plot.SavePng(path, Width, Height);
-        }
+        StatementPlot.Save(path, Width, Height, (canvas, rect) => plot.Render(canvas, rect), () => plot.SavePng(path, Width, Height));
     }
 }

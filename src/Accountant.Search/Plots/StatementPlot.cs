@@ -114,17 +114,20 @@ public static class StatementPlot
         bottom.XLabel("looks");
         bottom.ShowLegend(Alignment.UpperLeft);
 
-        if (Path.GetExtension(path).Equals(".svg", StringComparison.OrdinalIgnoreCase))
+        Save(path, Width, Height, (canvas, rect) => multiplot.Render(canvas, rect), () => multiplot.SavePng(path, Width, Height));
+    }
+
+    /// <summary>Writes a picture as SVG (by the file's extension) through <paramref name="render"/>, else as PNG.</summary>
+    internal static void Save(string path, int width, int height, Action<SKCanvas, PixelRect> render, Action png)
+    {
+        if (!Path.GetExtension(path).Equals(".svg", StringComparison.OrdinalIgnoreCase))
         {
-            using var stream = File.Create(path);
-            using (var canvas = SKSvgCanvas.Create(new SKRect(0, 0, Width, Height), stream))
-            {
-                multiplot.Render(canvas, new PixelRect(0, Width, Height, 0));
-            }
+            png();
+            return;
         }
-        else
-        {
-            multiplot.SavePng(path, Width, Height);
-        }
+
+        using var stream = File.Create(path);
+        using var canvas = SKSvgCanvas.Create(new SKRect(0, 0, width, height), stream);
+        render(canvas, new PixelRect(0, width, height, 0));
     }
 }

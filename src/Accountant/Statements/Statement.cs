@@ -106,6 +106,9 @@ public sealed record Statement(
     /// <summary>The anchors of the correlation-aware guarantee, when it was computed.</summary>
     public IReadOnlyList<ChainedAnchor> Anchors { get; init; } = [];
 
+    /// <summary>The anchor that gave the correlation-aware guarantee's bound, when it was computed.</summary>
+    public ChainedAnchor? AnchorUsed { get; init; }
+
     /// <summary>Why the correlation-aware guarantee is not in the statement although the metric allows it; null otherwise.</summary>
     public string? CorrelationNote { get; init; }
 }

@@ -74,6 +74,7 @@ public static class StatementBuilder
         {
             CorrelationNote = inputs.ChainedNote,
             Anchors = inputs.Chained?.Anchors ?? [],
+            AnchorUsed = inputs.Chained is { } c && best is not null ? c.Anchors[Chained(c, holdout.Size, options).UpperAnchor] : null,
         };
         return best is null || bounds.Count == 0 ? statement : statement with
         {
@@ -81,6 +82,10 @@ public static class StatementBuilder
             EffectiveComparisons = bounds[0].Method == ChainedBinomial.Name ? Effective(holdout, best, bounds[0], inputs.Chained!.Looks, options) : null,
         };
     }
+
+    /// <summary>chained-binomial on the statement's anchors at its confidence and sides (on the error scale).</summary>
+    private static ChainedBinomial.Result Chained(ChainedInputs chained, int n, StatementOptions options) =>
+        ChainedBinomial.Bound(n, chained.Looks, chained.Counts, chained.Increments, options.Delta, options.Sided);
 
     /// <summary>
     /// The tightest margin against a single look's: the same family's bound with M = 1 on the selected look's score (the exact
@@ -179,8 +184,7 @@ public static class StatementBuilder
                 lines.Add(Line(HoeffdingUnion.Name, accuracy, observed, HoeffdingUnion.BoundLog(error, n, logLooks, delta, LossRange.Unit, sided), HoeffdingReference));
                 if (inputs.Chained is { } chained)
                 {
-                    var result = ChainedBinomial.Bound(n, chained.Looks, chained.Counts, chained.Increments, delta, sided);
-                    lines.Add(Line(ChainedBinomial.Name, accuracy, observed, result.Interval, CorrelationAware.Reference));
+                    lines.Add(Line(ChainedBinomial.Name, accuracy, observed, Chained(chained, n, options).Interval, CorrelationAware.Reference));
                 }
 
                 break;
